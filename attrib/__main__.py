@@ -1,0 +1,3 @@
+from attrib.cli import main
+
+main()
