@@ -1,0 +1,359 @@
+"""MariaDB / MySQL slow query log (written with ``long_query_time = 0`` so that every statement is in it).
+
+An entry is a block of ``#`` header lines, optional ``use db;`` and ``SET timestamp=N;`` lines, then the
+statement text (any number of lines) to which the server appends ``;``. Sources: MySQL Reference Manual,
+"The Slow Query Log"; MariaDB Knowledge Base, "Slow Query Log Overview" and "Slow Query Log Extended
+Statistics"; and the output of a real MariaDB 10.11 server (tests/test_readers_mysql_server.py).
+
+Times. The statement start is taken, best first, from: the ``Start:`` value of MySQL's
+``log_slow_extra``; the entry's own ``# Time:`` line when it carries a UTC offset (MySQL 5.7+, microseconds;
+it is the time the entry was written, i.e. the end, so start = time - Query_time); the ``SET timestamp=``
+epoch, which is the statement start in whole seconds (seen on MariaDB 10.11: a 1.5 s ``SLEEP`` started at
+xx:52.30 was logged with ``SET timestamp`` = xx:52 and ``# Time:`` xx:53; for MySQL 8 the start meaning is
+from its source, per our log-formats reference); last, the entry's own or inherited ``# Time:``
+(MariaDB writes one only when the second changes, with no zone: then ``options.tz`` is needed, else
+:class:`~attrib.errors.TimezoneError`).
+
+Rows. ``rows`` is ``Rows_sent``; for INSERT, UPDATE, DELETE and REPLACE it is ``Rows_affected`` when the
+entry has that field (MariaDB), since DML sends no rows.
+
+Line accounting. Each entry is one record covering all its lines. The three-line server banner is
+``Skip("server")``; ``# administrator command:`` entries are ``Skip("admin-command")``; blank lines
+between entries are ``Skip("blank")``. An entry without ``# Query_time:``, without statement text, or whose
+text has no final ``;`` (a file cut mid-entry) is a :class:`~attrib.records.Reject`; lines after the last
+``;`` of an entry's text and before the next header are rejected as one block.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterable, Iterator
+from datetime import UTC, datetime, timedelta
+
+from attrib.errors import TimezoneError
+from attrib.records import ReadOptions, Record, Reject, Skip, Statement
+
+NAME = "mysql-slow"
+KIND = "statements"
+
+# Lines that start a new entry. MySQL accepts `#` comments inside SQL, so only these known header shapes
+# are treated as headers (log-formats reference, section 2, parser notes).
+_ENTRY_START = ("# Time:", "# User@Host:")
+_LATE_START = ("# Thread_id:", "# Query_time:")
+_ADMIN = "# administrator command:"
+# Server banner, written whenever the log file is opened (MySQL and MariaDB sql/log.cc, from our
+# log-formats reference; the MariaDB 10.11 shape was seen on the real server).
+_BANNER = re.compile(r"^\S.*, Version: .* started with:\s*$")
+_BANNER_PORT = re.compile(r"^Tcp port: \d+")
+_BANNER_TITLES = re.compile(r"^Time\s+Id\s+Command\s+Argument\s*$")
+_USER_HOST = re.compile(
+    r"^# User@Host: ([^\[]*)\[([^\]]*)\] @ ([^\[]*)\[([^\]]*)\](?:\s+Id:\s*(\d+))?"
+)
+_FIELD = re.compile(r"([A-Za-z_]+): *(\S*)")
+_USE = re.compile(r"^use (\S+);\s*$")
+# `SET [last_insert_id=N,][insert_id=N,]timestamp=N;` (MySQL manual, "The Slow Query Log": the server
+# writes a SET statement with the timestamp; the optional ids are from our log-formats reference).
+_SET = re.compile(r"^SET (?:last_insert_id=\d+,)?(?:insert_id=\d+,)?timestamp=(\d+(?:\.\d+)?);\s*$")
+_OLD_TIME = re.compile(r"^(\d{2})(\d{2})(\d{2})\s+(\d{1,2}):(\d{2}):(\d{2})$")
+_FIRST_WORD = re.compile(r"\s*(?:/\*.*?\*/\s*)*([A-Za-z]+)", re.DOTALL)
+_DML = frozenset({"insert", "update", "delete", "replace"})
+_EPOCH = datetime(1970, 1, 1, tzinfo=UTC)
+_ONE_US = timedelta(microseconds=1)
+
+
+def sniff(head: list[str]) -> bool:
+    """True when the first lines look like a slow query log (banner or entry headers).
+
+    >>> sniff(["# Time: 240305 14:02:11", "# User@Host: app[app] @  [192.0.2.4]"])
+    True
+    >>> sniff(['{"sql": "SELECT 1"}'])
+    False
+    """
+    for text in head:
+        if text.startswith(("# User@Host:", "# Query_time:")) or _BANNER.match(text):
+            return True
+    return False
+
+
+class _Entry:
+    """Header fields and text lines of one entry being read."""
+
+    __slots__ = (
+        "first",
+        "count",
+        "time",
+        "has_time",
+        "user",
+        "session",
+        "schema",
+        "use",
+        "query_time",
+        "rows_sent",
+        "rows_affected",
+        "errno",
+        "killed",
+        "start_extra",
+        "set_ts",
+        "sql",
+        "bad",
+    )
+
+    def __init__(self, first: int) -> None:
+        self.first = first
+        self.count = 0
+        self.time: tuple[str, datetime] | None = None
+        self.has_time = False
+        self.user: str | None = None
+        self.session: str | None = None
+        self.schema: str | None = None
+        self.use: str | None = None
+        self.query_time: float | None = None
+        self.rows_sent: int | None = None
+        self.rows_affected: int | None = None
+        self.errno: int | None = None
+        self.killed: int | None = None
+        self.start_extra: str | None = None
+        self.set_ts: str | None = None
+        self.sql: list[str] | None = None
+        self.bad: str | None = None
+
+
+class _Reader:
+    """State carried from entry to entry: the last ``# Time:`` and the last ``use`` database."""
+
+    def __init__(self, options: ReadOptions) -> None:
+        self.options = options
+        self.last_time: tuple[str, datetime] | None = None
+        self.last_use: str | None = None
+        self._time_cache: dict[str, tuple[str, datetime] | None] = {}
+
+    def parse_time(self, value: str) -> tuple[str, datetime] | None:
+        """``("aware"|"naive", datetime)`` of a ``# Time:`` value, or None when unreadable."""
+        cached = self._time_cache.get(value, False)
+        if cached is not False:
+            return cached  # type: ignore[return-value]
+        result: tuple[str, datetime] | None = None
+        match = _OLD_TIME.match(value)
+        try:
+            if match:
+                yy, mo, dd, hh, mi, ss = (int(g) for g in match.groups())
+                result = ("naive", datetime(2000 + yy, mo, dd, hh, mi, ss))
+            else:
+                dt = datetime.fromisoformat(value)
+                result = ("aware" if dt.tzinfo is not None else "naive", dt)
+        except ValueError:
+            result = None
+        if len(self._time_cache) > 4096:
+            self._time_cache.clear()
+        self._time_cache[value] = result
+        return result
+
+    def to_us(self, kind: str, dt: datetime, line: int) -> int:
+        if kind == "naive":
+            if self.options.tz is None:
+                raise TimezoneError(
+                    f"slow log line {line}: '# Time:' has no UTC offset and the entry has no "
+                    "'SET timestamp='; pass --tz with the database server's time zone"
+                )
+            dt = dt.replace(tzinfo=self.options.tz)
+        return (dt - _EPOCH) // _ONE_US
+
+    def header(self, entry: _Entry, text: str) -> None:
+        """Read one ``#`` header line into ``entry``."""
+        if text.startswith("# Time:"):
+            parsed = self.parse_time(text[7:].strip())
+            if parsed is None:
+                entry.bad = "unreadable '# Time:' value"
+            else:
+                entry.time = parsed
+                entry.has_time = True
+                self.last_time = parsed
+        elif text.startswith("# User@Host:"):
+            match = _USER_HOST.match(text)
+            if match:
+                entry.user = (match.group(2) or match.group(1)).strip() or None
+                if match.group(5):
+                    entry.session = match.group(5)
+        elif text.startswith("# Thread_id:"):
+            # MariaDB: "# Thread_id: 3127  Schema: bakery  QC_hit: No" (MariaDB manual, "Slow Query Log
+            # Extended Statistics"; the Schema value is empty when no database is selected, as seen on
+            # the real server).
+            fields = dict(_FIELD.findall(text))
+            entry.session = fields.get("Thread_id") or entry.session
+            schema_at = text.find("Schema:")
+            if schema_at >= 0:
+                rest = text[schema_at + 7 :].split()
+                entry.schema = rest[0] if rest and not rest[0].endswith(":") else ""
+        elif text.startswith("# Query_time:"):
+            fields = dict(_FIELD.findall(text))
+            try:
+                entry.query_time = float(fields["Query_time"])
+            except (KeyError, ValueError):
+                entry.bad = "unreadable '# Query_time:' line"
+                return
+            entry.rows_sent = _int(fields.get("Rows_sent"))
+            # MySQL 8.0.14+ log_slow_extra (MySQL manual, "The Slow Query Log"): Errno, Killed, Start.
+            entry.errno = _int(fields.get("Errno"))
+            entry.killed = _int(fields.get("Killed"))
+            if "Start" in fields:
+                entry.start_extra = fields["Start"]
+            if "Thread_id" in fields and entry.session is None:
+                entry.session = fields["Thread_id"]
+        elif text.startswith("# Rows_affected:"):
+            entry.rows_affected = _int(dict(_FIELD.findall(text)).get("Rows_affected"))
+        # Any other "#" line (Full_scan, Filesort, explain, a bare "#") carries nothing we keep.
+
+    def start_us(self, entry: _Entry) -> int | None:
+        """The statement start (see the module docstring for the order of sources)."""
+        duration_us = round((entry.query_time or 0.0) * 1_000_000)
+        if entry.start_extra:
+            parsed = self.parse_time(entry.start_extra)
+            if parsed is not None and parsed[0] == "aware":
+                return self.to_us(*parsed, entry.first)
+        if entry.has_time and entry.time is not None and entry.time[0] == "aware":
+            return self.to_us(*entry.time, entry.first) - duration_us
+        if entry.set_ts is not None:
+            whole, _, frac = entry.set_ts.partition(".")
+            return int(whole) * 1_000_000 + int((frac + "000000")[:6])
+        when = entry.time if entry.has_time else self.last_time
+        if when is None:
+            return None
+        return self.to_us(*when, entry.first) - duration_us
+
+    def finish(self, entry: _Entry, at_eof: bool) -> Iterator[Record]:
+        """The record(s) of a complete entry."""
+        sql_lines = entry.sql or []
+        end = len(sql_lines) - 1
+        while end >= 0 and not sql_lines[end].rstrip().endswith(";"):
+            end -= 1
+        if end < 0:
+            if not sql_lines:
+                reason = "entry ends before its statement"
+            elif at_eof:
+                reason = "statement cut off at end of file (no final ';')"
+            else:
+                reason = "statement not terminated by ';'"
+            yield Reject(entry.first, reason if entry.bad is None else entry.bad, "", entry.count)
+            return
+        trailing = len(sql_lines) - 1 - end
+        own = entry.count - trailing
+        if sql_lines[0].startswith(_ADMIN):
+            yield Skip(entry.first, "admin-command", own)
+        elif entry.bad is not None:
+            yield Reject(entry.first, entry.bad, "", own)
+        elif entry.query_time is None:
+            yield Reject(entry.first, "entry without a '# Query_time:' line", "", own)
+        else:
+            yield self.statement(entry, sql_lines[: end + 1], own)
+        if trailing:
+            yield Reject(
+                entry.first + own, "text after the end of a statement", sql_lines[end + 1], trailing
+            )
+
+    def statement(self, entry: _Entry, sql_lines: list[str], own: int) -> Record:
+        start = self.start_us(entry)
+        if start is None:
+            return Reject(entry.first, "entry has no time ('# Time:' or 'SET timestamp=')", "", own)
+        sql = "\n".join(sql_lines).rstrip()
+        sql = sql[:-1]  # the server appends ';' to every statement (MySQL manual, log.cc)
+        rows = entry.rows_sent
+        if entry.rows_affected is not None:
+            word = _FIRST_WORD.match(sql)
+            if word and word.group(1).lower() in _DML:
+                rows = entry.rows_affected
+        error = None
+        if entry.errno:
+            error = f"errno {entry.errno}"
+        elif entry.killed:
+            error = "killed"
+        return Statement(
+            line=entry.first,
+            start_us=start,
+            duration_ms=round((entry.query_time or 0.0) * 1_000_000) / 1000.0,
+            sql=sql,
+            rows=rows,
+            session=entry.session,
+            user=entry.user,
+            database=(entry.schema or None)
+            if entry.schema is not None
+            else (entry.use or self.last_use),
+            error=error,
+            lines=own,
+        )
+
+
+def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Record]:
+    """Yield one record per entry of a slow query log, in file order.
+
+    >>> from attrib.records import ReadOptions
+    >>> log = ["# User@Host: app[app] @  [192.0.2.4]", "# Thread_id: 7  Schema: huts  QC_hit: No",
+    ...        "# Query_time: 0.000200  Lock_time: 0.000000  Rows_sent: 1  Rows_examined: 1",
+    ...        "SET timestamp=1709647331;", "SELECT 1;"]
+    >>> [(r.sql, r.session, r.rows, r.start_us) for r in read(enumerate(log, 1), ReadOptions())]
+    [('SELECT 1', '7', 1, 1709647331000000)]
+    """
+    reader = _Reader(options)
+    entry: _Entry | None = None
+    for number, text in lines:
+        if entry is not None:
+            if entry.sql is None:
+                # Header part of an entry.
+                if text.startswith("#") and not text.startswith(_ADMIN):
+                    restart = text.startswith("# Time:") or (
+                        text.startswith("# User@Host:") and entry.user is not None
+                    )
+                    if not restart:
+                        entry.count += 1
+                        reader.header(entry, text)
+                        continue
+                elif _BANNER.match(text):
+                    pass
+                elif entry.set_ts is None and entry.use is None and _USE.match(text):
+                    entry.count += 1
+                    entry.use = _USE.match(text).group(1).strip("`")
+                    reader.last_use = entry.use
+                    continue
+                elif entry.set_ts is None and text.startswith("SET ") and _SET.match(text):
+                    entry.count += 1
+                    entry.set_ts = _SET.match(text).group(1)
+                    continue
+                else:
+                    entry.count += 1
+                    entry.sql = [text]
+                    continue
+            else:
+                # Statement text: runs until the next header or banner.
+                if not (
+                    (text.startswith("# ") and text.startswith(_ENTRY_START + _LATE_START))
+                    or (", Version: " in text and _BANNER.match(text))
+                ):
+                    entry.count += 1
+                    entry.sql.append(text)
+                    continue
+            yield from reader.finish(entry, at_eof=False)
+            entry = None
+        # Between entries.
+        if text.startswith("# ") and text.startswith(_ENTRY_START + _LATE_START):
+            entry = _Entry(number)
+            entry.count = 1
+            reader.header(entry, text)
+        elif _BANNER.match(text):
+            reader.last_use = None  # the writer forgets the last `use` when it reopens the file
+            yield Skip(number, "server")
+        elif _BANNER_PORT.match(text) or _BANNER_TITLES.match(text):
+            yield Skip(number, "server")
+        elif not text.strip():
+            yield Skip(number, "blank")
+        else:
+            yield Reject(number, "not part of a slow-log entry", text[:200])
+    if entry is not None:
+        yield from reader.finish(entry, at_eof=True)
+
+
+def _int(value: str | None) -> int | None:
+    if value is None:
+        return None
+    try:
+        return int(value)
+    except ValueError:
+        return None
