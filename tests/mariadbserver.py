@@ -93,8 +93,12 @@ def _accepts_connections(port: int) -> bool:
 
 
 @contextmanager
-def mariadb_server() -> Iterator[MariaDBServer]:
+def mariadb_server(timezone: str | None = None) -> Iterator[MariaDBServer]:
     """Run a private MariaDB server for the duration of the ``with`` block.
+
+    Args:
+        timezone: an IANA zone for the server process (``TZ``); its slow-log ``# Time:`` lines are
+            written in that local time. None keeps the machine's zone.
 
     Yields:
         A :class:`MariaDBServer`; its ``slow_log`` collects every statement the server runs. Call
@@ -164,6 +168,7 @@ def mariadb_server() -> Iterator[MariaDBServer]:
             ],
             stdout=subprocess.DEVNULL,
             stderr=subprocess.DEVNULL,
+            env={**os.environ, "TZ": timezone} if timezone else None,
         )
         deadline = time.monotonic() + _START_TIMEOUT_S
         while not _accepts_connections(port):

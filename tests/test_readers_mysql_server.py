@@ -12,10 +12,12 @@ from __future__ import annotations
 import time
 from collections import Counter
 from dataclasses import dataclass, field
+from zoneinfo import ZoneInfo
 
 import pytest
 
 from attrib.comments import request_keys
+from attrib.errors import TimezoneError
 from attrib.readers import mysql_slow
 from attrib.records import ReadOptions, Reject, Skip, Statement
 from tests.mariadbserver import mariadb_server
@@ -23,6 +25,9 @@ from tests.mariadbserver import mariadb_server
 pymysql = pytest.importorskip("pymysql")
 
 pytestmark = pytest.mark.server
+
+# A zone away from UTC, so that `# Time:` lines (server local time) differ from the UTC epoch.
+SERVER_TZ = "Europe/Zurich"
 
 
 class CountingCursor(pymysql.cursors.Cursor):
@@ -182,7 +187,7 @@ def run_workload(connect_kwargs: dict[str, object]) -> Workload:
 @pytest.fixture(scope="module")
 def served(tmp_path_factory: pytest.TempPathFactory) -> tuple[Workload, list, int, str]:
     """Run the workload on a fresh server; return it, the reader's records, the line count, the log."""
-    with mariadb_server() as server:
+    with mariadb_server(timezone=SERVER_TZ) as server:
         work = run_workload(server.connect_kwargs())
         log_path = server.stop()  # a clean shutdown writes every entry
         data = log_path.read_bytes()
@@ -268,3 +273,20 @@ def test_read_real_log_accounts_for_every_line(served) -> None:
     assert not [r for r in records if isinstance(r, Reject)]
     assert [r.line for r in records if isinstance(r, Skip)] == [1, 2, 3]
     assert text.splitlines()[0].endswith("started with:")
+
+
+def test_read_real_log_time_lines_give_the_same_start_as_set_timestamp(served) -> None:
+    # Source: real MariaDB server output. With the SET timestamp lines removed, the reader must fall
+    # back on the local `# Time:` lines (own or inherited) and find the same start for every statement.
+    _work, records, _n, text = served
+    lines = text.split("\n")
+    if lines[-1] == "":
+        lines.pop()
+    without_set = [ln for ln in lines if not ln.startswith("SET timestamp=")]
+    assert len(lines) - len(without_set) == sum(isinstance(r, Statement) for r in records)
+    with pytest.raises(TimezoneError):
+        list(mysql_slow.read(enumerate(without_set, 1), ReadOptions()))
+    again = list(mysql_slow.read(enumerate(without_set, 1), ReadOptions(tz=ZoneInfo(SERVER_TZ))))
+    starts = [r.start_us for r in records if isinstance(r, Statement)]
+    assert [r.start_us for r in again if isinstance(r, Statement)] == starts
+    assert sum("# Time:" in ln for ln in lines) < len(starts)  # some entries inherit their time

@@ -6,13 +6,18 @@ statement text (any number of lines) to which the server appends ``;``. Sources:
 Statistics"; and the output of a real MariaDB 10.11 server (tests/test_readers_mysql_server.py).
 
 Times. The statement start is taken, best first, from: the ``Start:`` value of MySQL's
-``log_slow_extra``; the entry's own ``# Time:`` line when it carries a UTC offset (MySQL 5.7+, microseconds;
-it is the time the entry was written, i.e. the end, so start = time - Query_time); the ``SET timestamp=``
-epoch, which is the statement start in whole seconds (seen on MariaDB 10.11: a 1.5 s ``SLEEP`` started at
-xx:52.30 was logged with ``SET timestamp`` = xx:52 and ``# Time:`` xx:53; for MySQL 8 the start meaning is
-from its source, per our log-formats reference); last, the entry's own or inherited ``# Time:``
-(MariaDB writes one only when the second changes, with no zone: then ``options.tz`` is needed, else
+``log_slow_extra``; the entry's own ``# Time:`` line when it is ISO 8601 with a UTC offset (MySQL 5.7+,
+microseconds; the write time, i.e. the end, per the MySQL source as summarised in our log-formats
+reference, not checked on a MySQL server here: start = time - Query_time); the ``SET timestamp=`` epoch;
+last, the entry's own or inherited ``# Time:`` line (then ``options.tz`` is needed, else
 :class:`~attrib.errors.TimezoneError`).
+
+Seen on a real MariaDB 10.11 server (tests/test_readers_mysql_server.py): ``SET timestamp=`` is the second
+in which the statement *started* (a 1.5 s ``SLEEP`` started at :15.1 is logged with ``SET timestamp`` =
+:15), and the ``YYMMDD hh:mm:ss`` ``# Time:`` line shows the same start second in the server's local time
+zone, written only when that second differs from the last one written; so an entry without ``# Time:``
+started in the second of the last one. Starts from MariaDB logs therefore have one-second resolution
+(truncated), and durations are exact to the microsecond.
 
 Rows. ``rows`` is ``Rows_sent``; for INSERT, UPDATE, DELETE and REPLACE it is ``Rows_affected`` when the
 entry has that field (MariaDB), since DML sends no rows.
@@ -128,7 +133,11 @@ class _Reader:
         self._time_cache: dict[str, tuple[str, datetime] | None] = {}
 
     def parse_time(self, value: str) -> tuple[str, datetime] | None:
-        """``("aware"|"naive", datetime)`` of a ``# Time:`` value, or None when unreadable."""
+        """``(kind, datetime)`` of a ``# Time:`` value, or None when unreadable.
+
+        ``kind`` is "aware" (ISO with offset), "naive" (ISO without) or "start" (``YYMMDD hh:mm:ss``,
+        local time, the start second on MariaDB).
+        """
         cached = self._time_cache.get(value, False)
         if cached is not False:
             return cached  # type: ignore[return-value]
@@ -137,7 +146,7 @@ class _Reader:
         try:
             if match:
                 yy, mo, dd, hh, mi, ss = (int(g) for g in match.groups())
-                result = ("naive", datetime(2000 + yy, mo, dd, hh, mi, ss))
+                result = ("start", datetime(2000 + yy, mo, dd, hh, mi, ss))
             else:
                 dt = datetime.fromisoformat(value)
                 result = ("aware" if dt.tzinfo is not None else "naive", dt)
@@ -149,7 +158,7 @@ class _Reader:
         return result
 
     def to_us(self, kind: str, dt: datetime, line: int) -> int:
-        if kind == "naive":
+        if kind != "aware":
             if self.options.tz is None:
                 raise TimezoneError(
                     f"slow log line {line}: '# Time:' has no UTC offset and the entry has no "
@@ -218,6 +227,8 @@ class _Reader:
         when = entry.time if entry.has_time else self.last_time
         if when is None:
             return None
+        if when[0] == "start":
+            return self.to_us(*when, entry.first)
         return self.to_us(*when, entry.first) - duration_us
 
     def finish(self, entry: _Entry, at_eof: bool) -> Iterator[Record]:
