@@ -7,10 +7,18 @@ Every CLI command calls one method here; the logic lives in the stage modules
 from __future__ import annotations
 
 import os
+from typing import TYPE_CHECKING
 
 import duckdb
 
 from attrib import store as _store
+
+if TYPE_CHECKING:  # analysis modules are imported when first used
+    from collections.abc import Iterable
+    from typing import Any
+
+    from attrib.coverage import Coverage
+    from attrib.ingest import IngestOptions, IngestResult, ProgressCallback
 
 
 class Store:
@@ -41,6 +49,30 @@ class Store:
         self.close()
 
     # Analyses are added below, one method per CLI command.
+
+    def ingest(
+        self,
+        requests: Iterable[str | os.PathLike[str]] = (),
+        queries: Iterable[str | os.PathLike[str]] = (),
+        options: IngestOptions | None = None,
+        progress: ProgressCallback | None = None,
+        **settings: Any,
+    ) -> IngestResult:
+        """Read logs into the store and link statements; see :func:`attrib.ingest.ingest`.
+
+        ``settings`` are :class:`attrib.ingest.IngestOptions` fields (e.g. ``tz="UTC"``), used when
+        ``options`` is not given.
+        """
+        from attrib import ingest
+
+        options = options or ingest.IngestOptions(**settings)
+        return ingest.ingest(self.con, requests, queries, options, progress)
+
+    def coverage(self, top: int = 10) -> Coverage:
+        """Linking and clock figures; see :func:`attrib.coverage.coverage`."""
+        from attrib import coverage
+
+        return coverage.coverage(self.con, top=top)
 
 
 def open(path: str | os.PathLike[str], *, read_only: bool = False) -> Store:  # noqa: A001

@@ -24,6 +24,9 @@ Exit codes:
 
 # command name -> "module:function" in this package
 _COMMANDS: dict[str, str] = {}
+_COMMANDS["ingest"] = "ingest:ingest_command"
+_COMMANDS["coverage"] = "coverage:coverage_command"
+_COMMANDS["fingerprint"] = "fingerprint:fingerprint_command"
 
 
 class _Group(click.Group):

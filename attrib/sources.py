@@ -1,0 +1,160 @@
+"""Input files: glob expansion, gzip by magic bytes, SHA-256, and numbered text lines.
+
+Lines are decoded as UTF-8; bytes that are not valid UTF-8 become U+FFFD (the replacement character)
+so that no line is ever dropped for its encoding. Line ends (``\\n`` or ``\\r\\n``) are removed.
+"""
+
+from __future__ import annotations
+
+import glob
+import gzip
+import hashlib
+import io
+import os
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+from typing import BinaryIO
+
+from attrib.errors import FormatError, InputError
+
+GZIP_MAGIC = b"\x1f\x8b"
+HEAD_LINES = 50
+_GLOB_CHARS = set("*?[")
+
+
+def expand(patterns: Iterable[str | os.PathLike[str]]) -> list[Path]:
+    """Expand file names and glob patterns, in the order given (matches of one glob sorted).
+
+    Raises InputError "PATTERN: no such file" for a missing file or a glob that matches nothing, and
+    for a directory. A file named twice is kept once.
+
+    >>> expand([]) == []
+    True
+    """
+    out: list[Path] = []
+    seen: set[Path] = set()
+    for pattern in patterns:
+        text = os.path.expanduser(str(pattern))
+        if _GLOB_CHARS & set(text) and not Path(text).exists():
+            matches = sorted(Path(p) for p in glob.glob(text, recursive=True))
+            matches = [p for p in matches if p.is_file()]
+        else:
+            matches = [Path(text)]
+        if not matches or not matches[0].exists():
+            raise InputError(f"{pattern}: no such file")
+        for path in matches:
+            if path.is_dir():
+                raise InputError(f"{path}: is a directory, not a log file")
+            key = path.resolve()
+            if key not in seen:
+                seen.add(key)
+                out.append(path)
+    return out
+
+
+def is_gzip(path: str | os.PathLike[str]) -> bool:
+    """True when the file starts with the gzip magic bytes (whatever its name)."""
+    with open(path, "rb") as f:
+        return f.read(2) == GZIP_MAGIC
+
+
+def sha256(path: str | os.PathLike[str]) -> str:
+    """Hex SHA-256 of the file's bytes as stored on disk (compressed files are hashed compressed)."""
+    with open(path, "rb") as f:
+        return hashlib.file_digest(f, "sha256").hexdigest()
+
+
+def open_binary(path: str | os.PathLike[str]) -> BinaryIO:
+    """Open a file for reading bytes, decompressing it when it is gzip."""
+    if is_gzip(path):
+        return gzip.open(path, "rb")  # type: ignore[return-value]
+    return open(path, "rb")
+
+
+def decode_lines(stream: BinaryIO) -> Iterator[str]:
+    """Decode a byte stream into lines without their ends (invalid UTF-8 becomes U+FFFD).
+
+    >>> list(decode_lines(io.BytesIO(b"a\\r\\nb\\xff\\nc")))
+    ['a', 'b\\ufffd', 'c']
+    """
+    text = io.TextIOWrapper(stream, encoding="utf-8", errors="replace", newline="\n")
+    for line in text:
+        if line.endswith("\n"):
+            line = line[:-2] if line.endswith("\r\n") else line[:-1]
+        yield line
+
+
+def head(path: str | os.PathLike[str], n: int = HEAD_LINES) -> list[str]:
+    """The first ``n`` decoded lines of a file, for format detection.
+
+    Raises FormatError when the file is not text (its first 8 KiB hold NUL bytes, as binary files do).
+    """
+    with open_binary(path) as raw:
+        try:
+            start = raw.read(8192)
+        except (OSError, EOFError) as exc:
+            raise FormatError(f"{path}: cannot read the file ({exc})") from None
+        if b"\x00" in start:
+            raise FormatError(f"{path}: not a text log (the file holds binary data)")
+        lines = []
+        for line in decode_lines(io.BytesIO(start + raw.read(1 << 20))):
+            lines.append(line)
+            if len(lines) >= n:
+                break
+    return lines
+
+
+class LineSource:
+    """The numbered lines of one file, counting how many were read and how far into the file.
+
+    Iterating yields ``(line_number, text)`` pairs numbered from 1.
+    """
+
+    def __init__(self, path: str | os.PathLike[str]) -> None:
+        self.path = Path(path)
+        self.size = self.path.stat().st_size
+        self.lines_read = 0
+        self._file = open(self.path, "rb")
+        self._stream: BinaryIO = (
+            gzip.GzipFile(fileobj=self._file, mode="rb")  # type: ignore[assignment]
+            if self._file.read(2) == GZIP_MAGIC
+            else self._file
+        )
+        self._file.seek(0)
+        self._lines = enumerate(decode_lines(self._stream), 1)
+
+    def __iter__(self) -> Iterator[tuple[int, str]]:
+        try:
+            for n, line in self._lines:
+                self.lines_read = n
+                yield n, line
+        except (OSError, EOFError) as exc:  # e.g. a truncated gzip member
+            raise FormatError(
+                f"{self.path}: cannot read past line {self.lines_read} ({exc})"
+            ) from None
+
+    def drain(self) -> int:
+        """Count the lines nobody read yet (a reader that stopped early) and return how many."""
+        before = self.lines_read
+        for _ in self:
+            pass
+        return self.lines_read - before
+
+    def position(self) -> int:
+        """Bytes of the file (as stored) consumed so far."""
+        try:
+            return self._file.tell()
+        except (OSError, ValueError):
+            return 0
+
+    def close(self) -> None:
+        """Close the file."""
+        if self._stream is not self._file:
+            self._stream.close()
+        self._file.close()
+
+    def __enter__(self) -> LineSource:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
