@@ -15,8 +15,12 @@ from attrib import store as _store
 
 if TYPE_CHECKING:  # analysis modules are imported when first used
     from collections.abc import Iterable
+    from datetime import datetime
     from typing import Any
 
+    import pandas as pd
+
+    from attrib.attribute import RouteDetail
     from attrib.coverage import Coverage
     from attrib.ingest import IngestOptions, IngestResult, ProgressCallback
 
@@ -73,6 +77,70 @@ class Store:
         from attrib import coverage
 
         return coverage.coverage(self.con, top=top)
+
+    def routes(
+        self,
+        *,
+        since: datetime | None = None,
+        until: datetime | None = None,
+        route: str | None = None,
+        sort: str = "db_share",
+        top: int | None = None,
+        reverse: bool = False,
+    ) -> pd.DataFrame:
+        """Routes ranked by share of database time; see :func:`attrib.attribute.routes`."""
+        from attrib import attribute
+
+        return attribute.routes(
+            self.con, since=since, until=until, route=route, sort=sort, top=top, reverse=reverse
+        )
+
+    def templates(
+        self,
+        *,
+        since: datetime | None = None,
+        until: datetime | None = None,
+        sort: str = "total_ms",
+        top: int | None = None,
+        reverse: bool = False,
+    ) -> pd.DataFrame:
+        """Query templates ranked by total time; see :func:`attrib.attribute.templates`."""
+        from attrib import attribute
+
+        return attribute.templates(
+            self.con, since=since, until=until, sort=sort, top=top, reverse=reverse
+        )
+
+    def route(
+        self,
+        name: str,
+        *,
+        since: datetime | None = None,
+        until: datetime | None = None,
+        min_repeats: int = 3,
+    ) -> RouteDetail:
+        """One route's templates and N+1 findings; see :func:`attrib.attribute.route_detail`."""
+        from attrib import attribute
+
+        return attribute.route_detail(
+            self.con, name, since=since, until=until, min_repeats=min_repeats
+        )
+
+    def nplus1(
+        self,
+        *,
+        min_repeats: int = 3,
+        since: datetime | None = None,
+        until: datetime | None = None,
+        route: str | None = None,
+        top: int | None = None,
+    ) -> pd.DataFrame:
+        """N+1 loops and redundant repeats by estimated saving; see :func:`attrib.nplus1.find`."""
+        from attrib import nplus1
+
+        return nplus1.find(
+            self.con, min_repeats=min_repeats, since=since, until=until, route=route, top=top
+        )
 
 
 def open(path: str | os.PathLike[str], *, read_only: bool = False) -> Store:  # noqa: A001

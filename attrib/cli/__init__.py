@@ -24,6 +24,10 @@ Exit codes:
 
 # command name -> "module:function" in this package
 _COMMANDS: dict[str, str] = {}
+_COMMANDS["routes"] = "rank:routes_cmd"
+_COMMANDS["templates"] = "rank:templates_cmd"
+_COMMANDS["route"] = "rank:route_cmd"
+_COMMANDS["nplus1"] = "rank:nplus1_cmd"
 _COMMANDS["ingest"] = "ingest:ingest_command"
 _COMMANDS["coverage"] = "coverage:coverage_command"
 _COMMANDS["fingerprint"] = "fingerprint:fingerprint_command"

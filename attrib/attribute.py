@@ -1,0 +1,443 @@
+"""Route and template rankings: one SQL query per listing over the store, results as DataFrames.
+
+All grouping runs inside DuckDB; pandas only receives one row per route or template. Definitions of
+every column are in docs/methods.md. Percentiles are DuckDB's ``quantile_cont`` (Hyndman and Fan
+definition 7, the same rule as :func:`attrib.stats.percentile`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Any
+
+import duckdb
+import pandas as pd
+
+from attrib.errors import UsageError
+
+#: The route shown for statements that no request claims.
+NO_REQUEST = "(no request)"
+
+ROUTE_COLUMNS = [
+    "route",
+    "requests",
+    "queries_per_request_mean",
+    "queries_per_request_p50",
+    "queries_per_request_p95",
+    "queries_per_request_max",
+    "db_ms_total",
+    "db_share",
+    "db_ms_per_request_p50",
+    "db_ms_per_request_p95",
+    "db_fraction_p50",
+    "db_fraction_aggregate",
+    "elapsed_ms_p50",
+    "elapsed_ms_p95",
+    "elapsed_ms_p99",
+    "distinct_templates_per_request_mean",
+    "repeat_fraction",
+]
+
+TEMPLATE_COLUMNS = [
+    "template_id",
+    "template",
+    "calls",
+    "calls_per_request",
+    "total_ms",
+    "share",
+    "mean_ms",
+    "p50_ms",
+    "p95_ms",
+    "p99_ms",
+    "rows_per_call",
+    "routes",
+    "first_seen",
+    "last_seen",
+]
+
+ROUTE_TEMPLATE_COLUMNS = [
+    "template_id",
+    "template",
+    "calls",
+    "calls_per_request",
+    "requests_share",
+    "total_ms",
+    "share",
+    "mean_ms",
+    "p50_ms",
+    "p95_ms",
+    "rows_per_call",
+]
+
+
+# --- filters ------------------------------------------------------------------------------------
+
+
+def request_filter(
+    alias: str,
+    *,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    route: str | None = None,
+) -> tuple[str, list[Any]]:
+    """A WHERE condition on the requests table (aliased ``alias``) and its parameters.
+
+    ``since`` is inclusive, ``until`` exclusive, both on ``started_at``. ``route`` matches exactly
+    or as a glob pattern (``*``, ``?``, ``[...]``).
+
+    >>> request_filter("r", route="/huts/*")
+    ('(r.route = ? OR r.route GLOB ?)', ['/huts/*', '/huts/*'])
+    """
+    conds, params = time_filter(alias, since=since, until=until)
+    if route is not None:
+        conds = f"{conds} AND " if conds != "TRUE" else ""
+        return f"{conds}({alias}.route = ? OR {alias}.route GLOB ?)", [*params, route, route]
+    return conds, params
+
+
+def time_filter(
+    alias: str, *, since: datetime | None = None, until: datetime | None = None
+) -> tuple[str, list[Any]]:
+    """A condition ``since <= alias.started_at < until`` (each side optional) and its parameters.
+
+    >>> time_filter("s")
+    ('TRUE', [])
+    """
+    if since is not None and until is not None and since >= until:
+        raise UsageError(f"--since {since.isoformat()} is not before --until {until.isoformat()}")
+    conds, params = [], []
+    if since is not None:
+        conds.append(f"{alias}.started_at >= ?")
+        params.append(since)
+    if until is not None:
+        conds.append(f"{alias}.started_at < ?")
+        params.append(until)
+    return (" AND ".join(conds) or "TRUE"), params
+
+
+def order(
+    df: pd.DataFrame,
+    sort: str,
+    *,
+    top: int | None = None,
+    reverse: bool = False,
+    tie: str | None = None,
+) -> pd.DataFrame:
+    """Sort a listing by one of its columns (numbers and times descending, text ascending).
+
+    Args:
+        df: the listing.
+        sort: a column name.
+        top: keep only the first ``top`` rows.
+        reverse: flip the direction.
+        tie: a column that breaks ties (ascending).
+
+    Returns:
+        The sorted listing with a fresh index.
+    """
+    if sort not in df.columns:
+        raise UsageError(f"cannot sort by {sort!r}; choose one of: {', '.join(df.columns)}")
+    if top is not None and top < 0:
+        raise UsageError(f"--top must be 0 or more, not {top}")
+    text = pd.api.types.is_object_dtype(df[sort]) or pd.api.types.is_string_dtype(df[sort])
+    ascending = text != reverse
+    by, asc = [sort], [ascending]
+    if tie is not None and tie != sort:
+        by.append(tie)
+        asc.append(True)
+    out = df.sort_values(by, ascending=asc, na_position="last", kind="stable")
+    if top is not None:
+        out = out.head(top)
+    return out.reset_index(drop=True)
+
+
+# --- routes -------------------------------------------------------------------------------------
+
+
+def routes(
+    con: duckdb.DuckDBPyConnection,
+    *,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    route: str | None = None,
+    sort: str = "db_share",
+    top: int | None = None,
+    reverse: bool = False,
+) -> pd.DataFrame:
+    """One row per route: request count, queries, database time and its share, elapsed times.
+
+    Args:
+        con: a store connection.
+        since, until: keep requests that started in [since, until); also bounds the statements that
+            make up the ``db_share`` denominator.
+        route: keep routes equal to this or matching it as a glob pattern.
+        sort, top, reverse: see :func:`order`.
+
+    Returns:
+        A DataFrame with :data:`ROUTE_COLUMNS`.
+    """
+    where, params = request_filter("r", since=since, until=until, route=route)
+    swhere, sparams = time_filter("s", since=since, until=until)
+    sql = f"""
+    WITH req AS (
+        SELECT r.source_id, r.line, r.seq, r.route, r.elapsed_ms FROM requests r WHERE {where}
+    ),
+    per_req AS (
+        SELECT req.route, any_value(req.elapsed_ms) AS elapsed_ms,
+               count(s.template_id) AS queries,
+               coalesce(sum(s.duration_ms), 0) AS db_ms,
+               count(DISTINCT s.template_id) AS templates
+        FROM req
+        LEFT JOIN links l
+          ON l.req_source_id = req.source_id AND l.req_line = req.line AND l.req_seq = req.seq
+        LEFT JOIN statements s
+          ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
+        GROUP BY req.source_id, req.line, req.seq, req.route
+    ),
+    total AS (SELECT sum(s.duration_ms) AS ms FROM statements s WHERE {swhere})
+    SELECT route,
+           count(*) AS requests,
+           avg(queries) AS queries_per_request_mean,
+           quantile_cont(queries, 0.5) AS queries_per_request_p50,
+           quantile_cont(queries, 0.95) AS queries_per_request_p95,
+           max(queries) AS queries_per_request_max,
+           sum(db_ms) AS db_ms_total,
+           sum(db_ms) / nullif(any_value(total.ms), 0) AS db_share,
+           quantile_cont(db_ms, 0.5) AS db_ms_per_request_p50,
+           quantile_cont(db_ms, 0.95) AS db_ms_per_request_p95,
+           quantile_cont(db_ms / nullif(elapsed_ms, 0), 0.5) AS db_fraction_p50,
+           sum(db_ms) / nullif(sum(elapsed_ms), 0) AS db_fraction_aggregate,
+           quantile_cont(elapsed_ms, 0.5) AS elapsed_ms_p50,
+           quantile_cont(elapsed_ms, 0.95) AS elapsed_ms_p95,
+           quantile_cont(elapsed_ms, 0.99) AS elapsed_ms_p99,
+           avg(templates) AS distinct_templates_per_request_mean,
+           (sum(queries) - sum(templates)) / nullif(sum(queries), 0) AS repeat_fraction
+    FROM per_req, total
+    GROUP BY route
+    """
+    df = _frame(con, sql, [*params, *sparams], ROUTE_COLUMNS)
+    df = df.astype({"requests": "int64", "queries_per_request_max": "int64"})
+    return order(df, sort, top=top, reverse=reverse, tie="route")
+
+
+# --- templates ----------------------------------------------------------------------------------
+
+
+def templates(
+    con: duckdb.DuckDBPyConnection,
+    *,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    sort: str = "total_ms",
+    top: int | None = None,
+    reverse: bool = False,
+) -> pd.DataFrame:
+    """One row per query template: calls, time and its share, duration percentiles, routes.
+
+    Args:
+        con: a store connection.
+        since, until: keep statements that started in [since, until).
+        sort, top, reverse: see :func:`order`.
+
+    Returns:
+        A DataFrame with :data:`TEMPLATE_COLUMNS`; ``routes`` holds lists of ``{route, share}``
+        dicts (largest share first; statements no request claims count under ``"(no request)"``).
+    """
+    where, params = time_filter("s", since=since, until=until)
+    sql = f"""
+    WITH st AS (
+        SELECT s.template_id, s.duration_ms, s.rows, s.started_at,
+               r.source_id AS rs, r.line AS rl, r.seq AS rq,
+               coalesce(r.route, '{NO_REQUEST}') AS route
+        FROM statements s
+        LEFT JOIN links l ON l.source_id = s.source_id AND l.line = s.line AND l.seq = s.seq
+        LEFT JOIN requests r
+          ON r.source_id = l.req_source_id AND r.line = l.req_line AND r.seq = l.req_seq
+        WHERE {where}
+    ),
+    tpl AS (
+        SELECT template_id, count(*) AS calls,
+               coalesce(sum(duration_ms), 0) AS total_ms,
+               avg(duration_ms) AS mean_ms,
+               quantile_cont(duration_ms, 0.5) AS p50_ms,
+               quantile_cont(duration_ms, 0.95) AS p95_ms,
+               quantile_cont(duration_ms, 0.99) AS p99_ms,
+               avg(rows) AS rows_per_call,
+               min(started_at) AS first_seen, max(started_at) AS last_seen,
+               count(rs) / nullif(count(DISTINCT (rs, rl, rq)) FILTER (rs IS NOT NULL), 0)
+                   AS calls_per_request
+        FROM st GROUP BY template_id
+    ),
+    per_route AS (
+        SELECT template_id, route, count(*) AS calls, coalesce(sum(duration_ms), 0) AS ms
+        FROM st GROUP BY template_id, route
+    ),
+    shares AS (
+        SELECT p.template_id,
+               list({{'route': p.route,
+                      'share': CASE WHEN t.total_ms > 0 THEN p.ms / t.total_ms
+                                    ELSE p.calls / t.calls END}}
+                    ORDER BY p.ms DESC, p.calls DESC, p.route) AS routes
+        FROM per_route p JOIN tpl t USING (template_id)
+        GROUP BY p.template_id
+    ),
+    total AS (SELECT sum(total_ms) AS ms FROM tpl)
+    SELECT t.template_id, tt.template, t.calls, t.calls_per_request, t.total_ms,
+           t.total_ms / nullif(total.ms, 0) AS share,
+           t.mean_ms, t.p50_ms, t.p95_ms, t.p99_ms, t.rows_per_call,
+           shares.routes, t.first_seen, t.last_seen
+    FROM tpl t JOIN shares USING (template_id)
+    LEFT JOIN templates tt USING (template_id), total
+    """
+    df = _frame(con, sql, params, TEMPLATE_COLUMNS)
+    df["calls"] = df["calls"].astype("int64")
+    df["routes"] = [_route_list(v) for v in df["routes"]]
+    return order(df, sort, top=top, reverse=reverse, tie="template_id")
+
+
+def routes_text(routes: list[dict[str, Any]]) -> str:
+    """The compact form of a template's ``routes`` cell for tables and CSV.
+
+    >>> routes_text([{"route": "/huts/{id}", "share": 0.82}, {"route": "/search", "share": 0.18}])
+    '/huts/{id} 82%, /search 18%'
+    """
+    return ", ".join(f"{r['route']} {_pct(r['share'])}" for r in routes)
+
+
+def templates_as_text(df: pd.DataFrame) -> pd.DataFrame:
+    """A copy of a templates listing whose ``routes`` column is the compact text form."""
+    out = df.copy()
+    out["routes"] = [routes_text(v) for v in out["routes"]]
+    return out
+
+
+# --- one route ----------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class RouteDetail:
+    """The drill-down into one route: its templates and its N+1 findings."""
+
+    route: str
+    requests: int
+    templates: pd.DataFrame
+    nplus1: pd.DataFrame
+
+
+def route_templates(
+    con: duckdb.DuckDBPyConnection,
+    route: str,
+    *,
+    since: datetime | None = None,
+    until: datetime | None = None,
+) -> tuple[int, pd.DataFrame]:
+    """The templates one route runs, with calls per request and share of the route's database time.
+
+    Args:
+        con: a store connection.
+        route: the route, exactly as in ``attrib routes``.
+        since, until: keep requests that started in [since, until).
+
+    Returns:
+        ``(requests, listing)``: the route's request count and a DataFrame with
+        :data:`ROUTE_TEMPLATE_COLUMNS`, largest total time first.
+    """
+    where, params = time_filter("r", since=since, until=until)
+    n = con.execute(
+        f"SELECT count(*) FROM requests r WHERE r.route = ? AND {where}", [route, *params]
+    ).fetchone()[0]
+    if n == 0:
+        raise UsageError(f"no requests for route {route!r} in the store; see `attrib routes`")
+    sql = f"""
+    WITH req AS (
+        SELECT r.source_id, r.line, r.seq FROM requests r WHERE r.route = ? AND {where}
+    ),
+    st AS (
+        SELECT s.template_id, s.duration_ms, s.rows, l.req_source_id, l.req_line, l.req_seq
+        FROM req
+        JOIN links l
+          ON l.req_source_id = req.source_id AND l.req_line = req.line AND l.req_seq = req.seq
+        JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
+    ),
+    tpl AS (
+        SELECT template_id, count(*) AS calls,
+               count(DISTINCT (req_source_id, req_line, req_seq)) AS requests,
+               coalesce(sum(duration_ms), 0) AS total_ms,
+               avg(duration_ms) AS mean_ms,
+               quantile_cont(duration_ms, 0.5) AS p50_ms,
+               quantile_cont(duration_ms, 0.95) AS p95_ms,
+               avg(rows) AS rows_per_call
+        FROM st GROUP BY template_id
+    )
+    SELECT t.template_id, tt.template, t.calls, t.calls / ? AS calls_per_request,
+           t.requests / ? AS requests_share, t.total_ms,
+           t.total_ms / nullif(sum(t.total_ms) OVER (), 0) AS share,
+           t.mean_ms, t.p50_ms, t.p95_ms, t.rows_per_call
+    FROM tpl t LEFT JOIN templates tt USING (template_id)
+    """
+    df = _frame(con, sql, [route, *params, n, n], ROUTE_TEMPLATE_COLUMNS)
+    df["calls"] = df["calls"].astype("int64")
+    return int(n), order(df, "total_ms", tie="template_id")
+
+
+# --- helpers ------------------------------------------------------------------------------------
+
+
+def _frame(
+    con: duckdb.DuckDBPyConnection, sql: str, params: list[Any], columns: list[str]
+) -> pd.DataFrame:
+    df = con.execute(sql, params).df()
+    if df.empty:
+        return pd.DataFrame({c: pd.Series(dtype=_EMPTY_DTYPES.get(c, "float64")) for c in columns})
+    return df[columns]
+
+
+_EMPTY_DTYPES = {
+    "route": "object",
+    "template_id": "object",
+    "template": "object",
+    "routes": "object",
+    "requests": "int64",
+    "calls": "int64",
+    "queries_per_request_max": "int64",
+    "first_seen": "datetime64[us]",
+    "last_seen": "datetime64[us]",
+}
+
+
+def _route_list(value: Any) -> list[dict[str, Any]]:
+    return [{"route": str(v["route"]), "share": float(v["share"])} for v in value]
+
+
+def _pct(share: float) -> str:
+    pct = share * 100
+    return f"{pct:.0f}%" if pct >= 1 or pct == 0 else "<1%"
+
+
+def route_detail(
+    con: duckdb.DuckDBPyConnection,
+    route: str,
+    *,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    min_repeats: int = 3,
+) -> RouteDetail:
+    """The drill-down into one route: :func:`route_templates` and its N+1 findings.
+
+    Args:
+        con: a store connection.
+        route: the route, exactly as in ``attrib routes``.
+        since, until: keep requests that started in [since, until).
+        min_repeats: see :func:`attrib.nplus1.find`.
+
+    Returns:
+        A :class:`RouteDetail`.
+    """
+    from attrib import nplus1  # nplus1 builds on this module
+
+    n, listing = route_templates(con, route, since=since, until=until)
+    findings = nplus1.find(
+        con, min_repeats=min_repeats, since=since, until=until, route=route, exact_route=True
+    )
+    return RouteDetail(route=route, requests=n, templates=listing, nplus1=findings)

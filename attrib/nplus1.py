@@ -1,0 +1,322 @@
+"""N+1 loops and redundant repeats inside requests, with the parent of each loop and a saving estimate.
+
+A template that runs at least ``min_repeats`` times in one request is a candidate. Its calls are an
+``n_plus_one`` loop when they carry more than one parameter set (``statements.param_hash``; NULL counts
+as one value of its own, "no parameters seen"), and ``redundant`` repeats when they all carry the same
+one. The heavy work (ordering statements inside requests, counting repeats, gaps and predecessors) is
+SQL over the store; Python receives one row per (route, child template, kind, predecessor) and builds
+a small networkx graph per route to pick each loop's parent. See docs/methods.md.
+"""
+
+from __future__ import annotations
+
+import math
+import uuid
+from datetime import datetime
+from typing import Any
+
+import duckdb
+import networkx as nx
+import pandas as pd
+
+from attrib import stats
+from attrib.attribute import order, request_filter, time_filter
+from attrib.errors import UsageError
+
+#: Default: a template must run this many times in one request to be a candidate.
+MIN_REPEATS = 3
+
+#: The graph node that stands for "nothing before it in the request".
+START = "(start)"
+
+NPLUS1_COLUMNS = [
+    "route",
+    "kind",
+    "child_template_id",
+    "child_template",
+    "parent_template_id",
+    "parent_template",
+    "requests",
+    "repeats_mean",
+    "repeats_max",
+    "parent_rows_match_share",
+    "wasted_ms_total",
+    "fixed_cost_ms",
+    "gap_ms_median",
+    "saving_ms_estimate",
+]
+
+_ORDER = "started_at, source_id, line, seq"
+
+
+def find(
+    con: duckdb.DuckDBPyConnection,
+    *,
+    min_repeats: int = MIN_REPEATS,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    route: str | None = None,
+    exact_route: bool = False,
+    top: int | None = None,
+) -> pd.DataFrame:
+    """Find N+1 loops and redundant repeats, ranked by estimated saving.
+
+    Args:
+        con: a store connection.
+        min_repeats: calls of one template in one request that make a candidate (≥ 2).
+        since, until: keep requests that started in [since, until).
+        route: keep routes equal to this or matching it as a glob pattern.
+        exact_route: match ``route`` only exactly (no glob).
+        top: keep the first ``top`` findings.
+
+    Returns:
+        A DataFrame with :data:`NPLUS1_COLUMNS`, one row per (route, child template, kind).
+    """
+    if min_repeats < 2:
+        raise UsageError(f"--min-repeats must be at least 2, not {min_repeats}")
+    if exact_route and route is not None:
+        where, params = time_filter("r", since=since, until=until)
+        where, params = f"{where} AND r.route = ?", [*params, route]
+    else:
+        where, params = request_filter("r", since=since, until=until, route=route)
+    occ = f"attrib_nplus1_{uuid.uuid4().hex}"
+    con.execute(f"CREATE TEMP TABLE {occ} AS {_occurrences_sql(where)}", [*params, min_repeats])
+    try:
+        findings = con.execute(_FINDINGS_SQL.format(occ=occ)).df()
+        edges = con.execute(_EDGES_SQL.format(occ=occ)).df()
+    finally:
+        con.execute(f"DROP TABLE IF EXISTS {occ}")
+    if findings.empty:
+        return _empty()
+    findings = _attach_parents(findings, edges)
+    fits = fixed_costs(
+        con,
+        findings.loc[findings["kind"] == "n_plus_one", "child_template_id"].unique().tolist(),
+        since=since,
+        until=until,
+    )
+    findings["fixed_cost_ms"] = [
+        fits[t].fixed_ms if k == "n_plus_one" else math.nan
+        for t, k in zip(findings["child_template_id"], findings["kind"], strict=True)
+    ]
+    findings["saving_ms_estimate"] = [_saving(row) for row in findings.itertuples()]
+    names = _template_names(
+        con, set(findings["child_template_id"]) | set(findings["parent_template_id"].dropna())
+    )
+    findings["child_template"] = findings["child_template_id"].map(names)
+    findings["parent_template"] = findings["parent_template_id"].map(names)
+    findings = findings.astype({"requests": "int64", "repeats_max": "int64"})
+    out = findings[NPLUS1_COLUMNS]
+    out = out.sort_values(
+        ["saving_ms_estimate", "wasted_ms_total", "route", "child_template_id", "kind"],
+        ascending=[False, False, True, True, True],
+        na_position="last",
+        kind="stable",
+    )
+    return order(out.reset_index(drop=True), "saving_ms_estimate", top=top, tie=None)
+
+
+def fixed_costs(
+    con: duckdb.DuckDBPyConnection,
+    template_ids: list[str],
+    *,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    sample: int = stats.FIT_SAMPLE,
+) -> dict[str, stats.CostFit]:
+    """Fit each template's fixed cost per call on a bounded, deterministic sample of its calls.
+
+    The sample is the ``sample`` calls with the smallest ``hash(source_id, line, seq)`` among those
+    with a known duration, so the same store always gives the same fit.
+
+    Args:
+        con: a store connection.
+        template_ids: the templates to fit.
+        since, until: keep statements that started in [since, until).
+        sample: calls per template at most.
+
+    Returns:
+        template id -> :class:`attrib.stats.CostFit` (every requested id is present).
+    """
+    if not template_ids:
+        return {}
+    where, params = time_filter("s", since=since, until=until)
+    df = con.execute(
+        f"""
+        SELECT s.template_id, s.duration_ms, s.rows
+        FROM statements s
+        WHERE s.template_id IN (SELECT unnest(?::VARCHAR[])) AND s.duration_ms IS NOT NULL
+          AND {where}
+        QUALIFY row_number() OVER (
+            PARTITION BY s.template_id ORDER BY hash(s.source_id, s.line, s.seq), s.line) <= ?
+        """,
+        [template_ids, *params, sample],
+    ).df()
+    groups = {t: g for t, g in df.groupby("template_id", sort=False)}
+    out = {}
+    for t in template_ids:
+        g = groups.get(t)
+        if g is None:
+            out[t] = stats.CostFit(math.nan, 0.0, "median", 0)
+            continue
+        rows = [None if pd.isna(r) else float(r) for r in g["rows"]]
+        out[t] = stats.fit_fixed_cost(g["duration_ms"].astype(float).tolist(), rows)
+    return out
+
+
+def parent_graphs(edges: pd.DataFrame) -> dict[str, nx.DiGraph]:
+    """Per route, a directed graph of the transitions into the first call of each repeated template.
+
+    Args:
+        edges: rows of ``route, parent_template_id, child_template_id, kind, requests`` (NULL parent
+            = the child ran first in the request), already counted in SQL.
+
+    Returns:
+        route -> DiGraph whose edge ``u -> v`` carries ``weight`` (requests where ``u`` came right
+        before the first call of ``v``) and one count per kind.
+    """
+    graphs: dict[str, nx.DiGraph] = {}
+    for row in edges.itertuples(index=False):
+        g = graphs.setdefault(row.route, nx.DiGraph())
+        u = START if pd.isna(row.parent_template_id) else row.parent_template_id
+        v = row.child_template_id
+        if not g.has_edge(u, v):
+            g.add_edge(u, v, weight=0)
+        g[u][v]["weight"] += int(row.requests)
+        g[u][v][row.kind] = g[u][v].get(row.kind, 0) + int(row.requests)
+    return graphs
+
+
+def pick_parent(graph: nx.DiGraph, child: str, kind: str) -> str | None:
+    """The template that most often runs right before the first call of ``child`` (for ``kind``).
+
+    Ties go to the edge with more requests of any kind, then to the smaller template id. ``None``
+    when the child most often starts the request.
+
+    >>> g = nx.DiGraph()
+    >>> g.add_edge("a", "c", weight=3, n_plus_one=3)
+    >>> g.add_edge("b", "c", weight=1, n_plus_one=1)
+    >>> pick_parent(g, "c", "n_plus_one")
+    'a'
+    """
+    ranked = sorted(
+        (-data.get(kind, 0), -data["weight"], u) for u, _v, data in graph.in_edges(child, data=True)
+    )
+    best = ranked[0][2] if ranked else None
+    return None if best in (None, START) else best
+
+
+# --- SQL ----------------------------------------------------------------------------------------
+
+
+def _occurrences_sql(where: str) -> str:
+    """Every call of a candidate (request, template), with its position, gap and predecessor."""
+    return f"""
+    WITH req AS (SELECT r.source_id, r.line, r.seq, r.route FROM requests r WHERE {where}),
+    st AS (
+        SELECT req.source_id AS rs, req.line AS rl, req.seq AS rq, req.route,
+               s.source_id, s.line, s.seq, s.started_at, s.duration_ms, s.rows,
+               s.template_id, s.param_hash
+        FROM req
+        JOIN links l
+          ON l.req_source_id = req.source_id AND l.req_line = req.line AND l.req_seq = req.seq
+        JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
+    ),
+    cand AS (
+        SELECT rs, rl, rq, template_id, count(*) AS n,
+               CASE WHEN count(DISTINCT param_hash)
+                         + (count(*) FILTER (WHERE param_hash IS NULL) > 0)::INTEGER > 1
+                    THEN 'n_plus_one' ELSE 'redundant' END AS kind
+        FROM st GROUP BY rs, rl, rq, template_id
+        HAVING count(*) >= ?
+    ),
+    ordered AS (
+        SELECT st.*,
+               lag(template_id) OVER w AS prev_template_id,
+               lag(rows) OVER w AS prev_rows
+        FROM st SEMI JOIN (SELECT DISTINCT rs, rl, rq FROM cand) c USING (rs, rl, rq)
+        WINDOW w AS (PARTITION BY rs, rl, rq ORDER BY {_ORDER})
+    )
+    SELECT o.rs, o.rl, o.rq, o.route, o.template_id, c.kind, c.n, o.duration_ms,
+           o.prev_template_id, o.prev_rows,
+           row_number() OVER v AS k,
+           (epoch_us(o.started_at) - lag(epoch_us(o.started_at)) OVER v) / 1000.0
+               - lag(coalesce(o.duration_ms, 0)) OVER v AS gap_ms
+    FROM ordered o JOIN cand c USING (rs, rl, rq, template_id)
+    WINDOW v AS (PARTITION BY o.rs, o.rl, o.rq, o.template_id ORDER BY {_ORDER})
+    """
+
+
+_FINDINGS_SQL = """
+WITH pairs AS (
+    SELECT route, template_id, kind, any_value(n) AS n,
+           coalesce(sum(duration_ms) FILTER (WHERE k > 1), 0) AS wasted_ms
+    FROM {occ} GROUP BY rs, rl, rq, route, template_id, kind
+),
+gaps AS (
+    SELECT route, template_id, kind, quantile_cont(greatest(gap_ms, 0), 0.5) AS gap_ms_median
+    FROM {occ} WHERE k > 1 GROUP BY route, template_id, kind
+)
+SELECT route, template_id AS child_template_id, kind,
+       count(*) AS requests, avg(n) AS repeats_mean, max(n) AS repeats_max,
+       sum(n - 1) AS extra_calls, sum(wasted_ms) AS wasted_ms_total,
+       any_value(g.gap_ms_median) AS gap_ms_median
+FROM pairs JOIN gaps g USING (route, template_id, kind)
+GROUP BY route, template_id, kind
+"""
+
+_EDGES_SQL = """
+SELECT route, prev_template_id AS parent_template_id, template_id AS child_template_id, kind,
+       count(*) AS requests,
+       count(*) FILTER (WHERE prev_rows IS NOT NULL) AS rows_known,
+       count(*) FILTER (WHERE prev_rows = n) AS rows_match
+FROM {occ} WHERE k = 1
+GROUP BY route, prev_template_id, template_id, kind
+"""
+
+
+# --- helpers ------------------------------------------------------------------------------------
+
+
+def _attach_parents(findings: pd.DataFrame, edges: pd.DataFrame) -> pd.DataFrame:
+    graphs = parent_graphs(edges)
+    key = edges.assign(parent=edges["parent_template_id"].fillna(START)).set_index(
+        ["route", "parent", "child_template_id", "kind"]
+    )
+    parents, shares = [], []
+    for row in findings.itertuples(index=False):
+        parent = pick_parent(graphs[row.route], row.child_template_id, row.kind)
+        e = key.loc[(row.route, parent or START, row.child_template_id, row.kind)]
+        parents.append(parent)
+        shares.append(e["rows_match"] / e["rows_known"] if e["rows_known"] else math.nan)
+    return findings.assign(parent_template_id=parents, parent_rows_match_share=shares)
+
+
+def _saving(row: Any) -> float:
+    # The per-request model is linear in (repeats - 1), so its sum over the requests of a finding is
+    # the model applied once to 1 + the sum of (repeats - 1).
+    if row.kind == "redundant":
+        return stats.cache_saving_ms(row.extra_calls + 1, row.wasted_ms_total, row.gap_ms_median)
+    return stats.loop_saving_ms(row.extra_calls + 1, row.fixed_cost_ms, row.gap_ms_median)
+
+
+def _template_names(con: duckdb.DuckDBPyConnection, ids: set[str]) -> dict[str, str]:
+    if not ids:
+        return {}
+    rows = con.execute(
+        "SELECT template_id, template FROM templates WHERE template_id IN (SELECT unnest(?))",
+        [sorted(ids)],
+    ).fetchall()
+    return dict(rows)
+
+
+def _empty() -> pd.DataFrame:
+    dtypes = {"requests": "int64", "repeats_max": "int64"}
+    text = {"route", "kind", "child_template_id", "child_template"}
+    text |= {"parent_template_id", "parent_template"}
+    return pd.DataFrame(
+        {
+            c: pd.Series(dtype=dtypes.get(c, "object" if c in text else "float64"))
+            for c in NPLUS1_COLUMNS
+        }
+    )

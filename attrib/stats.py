@@ -1,0 +1,153 @@
+"""Small pure helpers: the percentile rule, the robust per-template cost fit and the saving model.
+
+One percentile definition is used everywhere in attrib: linear interpolation between order statistics,
+Hyndman and Fan (1996) definition 7. DuckDB's ``quantile_cont`` and ``numpy.percentile(method="linear")``
+compute the same thing; :func:`percentile` is the version for values that are already in Python.
+See docs/methods.md for every formula and its source.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats as _scipy_stats
+
+#: How many calls per template the cost fit looks at (drawn deterministically by the caller).
+FIT_SAMPLE = 2000
+
+
+def percentile(values: Iterable[float | None], q: float) -> float:
+    """The ``q``-th percentile (0-100) by linear interpolation between order statistics.
+
+    Hyndman and Fan (1996) definition 7: sort the n values, take h = (n - 1) * q / 100, and
+    interpolate between the values at ranks floor(h) and floor(h) + 1 (0-based). ``None`` and NaN
+    values are ignored; no values give NaN.
+
+    Args:
+        values: the sample.
+        q: the percentile, between 0 and 100.
+
+    Returns:
+        The percentile as a float, or NaN for an empty sample.
+
+    >>> percentile([1, 2, 3, 4], 50)
+    2.5
+    >>> percentile([10, 20, 30, 40, 50], 95)
+    48.0
+    """
+    if not 0 <= q <= 100:
+        raise ValueError(f"percentile {q} is outside 0-100")
+    xs = sorted(float(v) for v in values if v is not None and not math.isnan(float(v)))
+    if not xs:
+        return math.nan
+    h = (len(xs) - 1) * q / 100.0
+    lo = math.floor(h)
+    hi = min(lo + 1, len(xs) - 1)
+    return xs[lo] + (h - lo) * (xs[hi] - xs[lo])
+
+
+@dataclass(frozen=True, slots=True)
+class CostFit:
+    """A template's per-call cost: duration ≈ fixed_ms + per_row_ms × rows.
+
+    ``method`` is ``"theil-sen"`` when the fit used rows, ``"median"`` when rows were unknown or
+    constant (then ``fixed_ms`` is the median duration and ``per_row_ms`` is 0). ``n`` is the number
+    of calls the fit looked at.
+    """
+
+    fixed_ms: float
+    per_row_ms: float
+    method: str
+    n: int
+
+
+def fit_fixed_cost(
+    durations: Sequence[float | None], rows: Sequence[float | None] | None = None
+) -> CostFit:
+    """Fit a template's duration against its rows with a robust line and return its fixed cost.
+
+    Theil-Sen estimator (``scipy.stats.theilslopes``: slope = median of pairwise slopes, intercept =
+    median(y) - slope × median(x)) over the calls whose duration and rows are both known. When fewer
+    than two distinct row counts are known the fixed cost is the median duration instead. The fixed
+    cost is floored at 0 (a negative intercept has no meaning as a cost).
+
+    Args:
+        durations: call durations in ms (None = not logged; ignored).
+        rows: rows returned by the same calls, or None when the log has no row counts.
+
+    Returns:
+        A :class:`CostFit`; ``fixed_ms`` is NaN when no duration is known.
+
+    >>> fit_fixed_cost([1.0, 2.0, 3.0], [0, 10, 20]).fixed_ms
+    1.0
+    >>> fit_fixed_cost([4.0, 2.0, 3.0]).method
+    'median'
+    """
+    y = np.array([np.nan if d is None else d for d in durations], dtype=float)
+    x = (
+        np.full(len(y), np.nan)
+        if rows is None
+        else np.array([np.nan if r is None else r for r in rows], dtype=float)
+    )
+    if len(x) != len(y):
+        raise ValueError("durations and rows must have the same length")
+    known = ~np.isnan(y)
+    if not known.any():
+        return CostFit(math.nan, 0.0, "median", 0)
+    both = known & ~np.isnan(x)
+    if len(np.unique(x[both])) >= 2:
+        slope, intercept, _lo, _hi = _scipy_stats.theilslopes(y[both], x[both])
+        return CostFit(max(float(intercept), 0.0), float(slope), "theil-sen", int(both.sum()))
+    return CostFit(max(float(np.median(y[known])), 0.0), 0.0, "median", int(known.sum()))
+
+
+# --- the saving model -------------------------------------------------------------------------
+# A loop of r calls to one template becomes one batched call; a redundant repeat becomes one cached
+# call. Both are per request; the listings sum them over the requests of a finding.
+
+
+def loop_saving_ms(repeats: float, fixed_ms: float, gap_ms: float) -> float:
+    """Estimated saving when ``repeats`` calls of a template become one batched call.
+
+    saving = (repeats - 1) × (fixed cost per call + application round trip between calls). The
+    per-row part of the cost stays: the batch still returns every row.
+
+    Args:
+        repeats: calls of the template in one request (r ≥ 1).
+        fixed_ms: the template's fixed cost per call (:func:`fit_fixed_cost`), ≥ 0.
+        gap_ms: the median gap between consecutive calls (next start - previous end), ≥ 0.
+
+    Returns:
+        Milliseconds saved in that request.
+
+    >>> loop_saving_ms(10, 0.5, 0.3)
+    7.2
+    """
+    if repeats < 1:
+        raise ValueError("repeats must be at least 1")
+    return (repeats - 1) * (max(fixed_ms, 0.0) + max(gap_ms, 0.0))
+
+
+def cache_saving_ms(repeats: float, repeat_ms: float, gap_ms: float) -> float:
+    """Estimated saving when ``repeats`` identical calls become one call whose result is reused.
+
+    saving = the duration of the calls beyond the first + (repeats - 1) × the round trip between
+    calls: a cache keeps one call and drops the rest entirely.
+
+    Args:
+        repeats: calls with the same parameters in one request (r ≥ 1).
+        repeat_ms: total duration of the calls beyond the first.
+        gap_ms: the median gap between consecutive calls, ≥ 0.
+
+    Returns:
+        Milliseconds saved in that request.
+
+    >>> cache_saving_ms(3, 4.0, 0.5)
+    5.0
+    """
+    if repeats < 1:
+        raise ValueError("repeats must be at least 1")
+    return max(repeat_ms, 0.0) + (repeats - 1) * max(gap_ms, 0.0)
