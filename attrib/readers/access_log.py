@@ -22,7 +22,8 @@ is attrib's own: literal text with ``{field}`` placeholders. Fields:
 
 A placeholder between double quotes in the format matches a quoted value with ``\\"`` escapes, one
 between ``[`` and ``]`` matches up to ``]``; any other matches a run of non-space characters. Spaces in
-the format match one or more spaces. Named formats expand at the start of a format string:
+the format match one or more spaces. ``{_}`` outside quotes skips any text, spaces included, up to
+what follows it (nginx ``$upstream_response_time`` can be ``0.002, 0.009``). Named formats expand at the start of a format string:
 
 - ``common``: ``{remote} {ident} {user} [{time}] "{request}" {status} {bytes}``
 - ``combined``: ``common`` plus ``"{referer}" "{agent}"`` (Apache's, ``%t`` = start time)
@@ -115,6 +116,7 @@ _METHOD = re.compile(r"[A-Z][A-Z0-9_-]{0,31}\Z")
 _QUOTED = r'((?:[^"\\]|\\.)*)'
 _BRACKETED = r"([^\]]*)"
 _BARE = r"(\S+)"
+_ANY = r"(.*?)"
 
 
 def sniff(head: list[str]) -> bool:
@@ -278,6 +280,8 @@ def _compile(spec: str) -> tuple[str, list[str]]:
             parts.append(_QUOTED)
         elif before == "[" and after == "]":
             parts.append(_BRACKETED)
+        elif match.group(1) == "_":
+            parts.append(_ANY)
         else:
             parts.append(_BARE)
         fields.append(match.group(1))

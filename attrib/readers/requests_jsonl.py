@@ -250,13 +250,14 @@ def to_elapsed_ms(value: object, unit: str) -> float:
     if isinstance(value, int | float) and not isinstance(value, bool):
         ms = value * _TO_MS[unit]
     elif isinstance(value, str):
-        if value.lstrip().startswith("-"):
+        text = value.strip()
+        if text in ("", "-"):
+            raise BadValue("no elapsed time")
+        if text.startswith("-"):
             raise BadValue("negative elapsed time")
-        match = _DURATION.match(value)
+        match = _DURATION.match(text)
         if match is None:
-            raise BadValue(
-                "bad elapsed time" if value.strip() not in ("", "-") else "no elapsed time"
-            )
+            raise BadValue("bad elapsed time")
         ms = float(match.group(1)) * _TO_MS[match.group(2) or unit]
     elif value is None:
         raise BadValue("no elapsed time")
