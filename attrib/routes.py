@@ -70,7 +70,9 @@ def derive_route(path: str) -> str:
     >>> derive_route("/orders/9051/loaves//3f9a1c27-d45e-4b08-a6c2-e19b7d05f3a1?x=1")
     '/orders/{id}/loaves/{uuid}'
     """
-    return _derive(url_path(path))
+    if not path.startswith("/") or "?" in path or "#" in path:
+        path = url_path(path)
+    return _derive(path)
 
 
 @lru_cache(maxsize=65536)

@@ -181,8 +181,15 @@ class FieldPlan:
         if self.elapsed is not None:
             pairs.append(("elapsed", self.elapsed[0]))
 
-        def get(record: dict[str, object]) -> dict[str, object]:
-            return {ours: lookup(record, name) for ours, name in pairs}
+        if any("." in name for _, name in pairs):
+
+            def get(record: dict[str, object]) -> dict[str, object]:
+                return {ours: lookup(record, name) for ours, name in pairs}
+
+        else:
+
+            def get(record: dict[str, object]) -> dict[str, object]:
+                return {ours: record.get(name) for ours, name in pairs}
 
         return get
 
