@@ -9,6 +9,7 @@ import click
 
 from attrib import api
 from attrib.cli.options import emit, format_option, store_option
+from attrib.errors import UsageError
 from attrib.ingest import DIALECTS, IngestOptions, Progress, parse_mapping
 
 
@@ -126,7 +127,7 @@ def ingest_command(
     Example: attrib ingest --store shop.duckdb --requests 'web/*.jsonl.gz' --queries pg.log
     """
     if not requests and not queries:
-        raise click.UsageError("give at least one --requests or --queries file")
+        raise UsageError("give at least one --requests or --queries file")
     options = IngestOptions(
         tz=tz,
         log_line_prefix=log_line_prefix,
