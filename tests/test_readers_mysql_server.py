@@ -9,6 +9,7 @@ connection's thread id and the statement start.
 
 from __future__ import annotations
 
+import json
 import time
 from collections import Counter
 from dataclasses import dataclass, field
@@ -18,7 +19,7 @@ import pytest
 
 from attrib.comments import request_keys
 from attrib.errors import TimezoneError
-from attrib.readers import mysql_slow
+from attrib.readers import mysql_slow, sql_jsonl
 from attrib.records import ReadOptions, Reject, Skip, Statement
 from tests.mariadbserver import mariadb_server
 
@@ -31,18 +32,44 @@ SERVER_TZ = "Europe/Zurich"
 
 
 class CountingCursor(pymysql.cursors.Cursor):
-    """A cursor that counts every statement it sends, per current request, and tags it."""
+    """A cursor that counts every statement it sends, per current request, and tags it.
+
+    It is also a tiny application SQL logger: each statement of a request becomes one JSON line in
+    ``journal`` (end time, text, client-side duration, rowcount, request id, connection id, errno),
+    the input of the sql-jsonl reader.
+    """
 
     request: str | None = None
     sent: Counter[str]
+    journal: list[str]
 
     def tagged(self, sql: str) -> str:
         return f"{sql} /*request_id='{self.request}'*/"
 
     def _query(self, q: str) -> int:  # every execute() and each executemany() batch ends here
-        if self.request is not None:
-            self.sent[self.request] += 1
-        return super()._query(q)
+        if self.request is None:
+            return super()._query(q)
+        self.sent[self.request] += 1
+        started = time.perf_counter()
+        error = None
+        try:
+            return super()._query(q)
+        except pymysql.err.MySQLError as exc:
+            error = exc.args[0]
+            raise
+        finally:
+            line = {
+                "ts": time.time(),
+                # executemany() sends its batched INSERT as encoded bytes
+                "sql": q.decode("utf-8") if isinstance(q, bytes | bytearray) else q,
+                "duration_ms": (time.perf_counter() - started) * 1000,
+                "rows": self.rowcount if error is None else None,
+                "request_id": self.request,
+                "session": self.connection.thread_id(),
+            }
+            if error is not None:
+                line["error"] = error
+            self.journal.append(json.dumps(line, ensure_ascii=False))
 
 
 @dataclass
@@ -54,6 +81,7 @@ class Workload:
     thread_of: dict[str, int] = field(default_factory=dict)  # request id -> connection thread id
     sleep_window: tuple[float, float] = (0.0, 0.0)  # client clock around SELECT SLEEP(...)
     failed: list[str] = field(default_factory=list)
+    journal: list[str] = field(default_factory=list)  # the JSON-lines SQL log of the workload
 
 
 SCHEMA = [
@@ -85,6 +113,7 @@ def run_workload(connect_kwargs: dict[str, object]) -> Workload:
     cursors = [conn.cursor() for conn in pool]
     for cur in cursors:
         cur.sent = work.sent
+        cur.journal = work.journal
 
     def request(n: int) -> CountingCursor:
         cur = cursors[n % 2]
@@ -290,3 +319,32 @@ def test_read_real_log_time_lines_give_the_same_start_as_set_timestamp(served) -
     starts = [r.start_us for r in records if isinstance(r, Statement)]
     assert [r.start_us for r in again if isinstance(r, Statement)] == starts
     assert sum("# Time:" in ln for ln in lines) < len(starts)  # some entries inherit their time
+
+
+def test_read_workload_json_log_agrees_with_the_real_slow_log(served) -> None:
+    # Source: real MariaDB server output, against the workload's own JSON-lines SQL log of the same
+    # statements: same per-request counts, same text (the server logs what the client sent and
+    # appends ';'), same row counts, and the logged start second lies between the client's
+    # start and end of the call.
+    work, records, _n, _text = served
+    journal = list(sql_jsonl.read(enumerate(work.journal, 1), ReadOptions()))
+    assert all(isinstance(r, Statement) for r in journal) and len(journal) == sum(
+        work.sent.values()
+    )
+    app: dict[str, list[Statement]] = {}
+    for stmt in journal:
+        app.setdefault(stmt.request_id, []).append(stmt)
+    server = _by_request(records)
+    assert {k: len(v) for k, v in app.items()} == {k: len(v) for k, v in server.items()}
+    for rid, stmts in app.items():
+        for mine, logged in zip(stmts, server[rid], strict=True):
+            assert mine.sql == logged.sql
+            assert mine.session == logged.session
+            if mine.error is None:
+                assert mine.rows == logged.rows, mine.sql
+            client_start_s = mine.start_us / 1e6
+            client_end_s = client_start_s + mine.duration_ms / 1000
+            assert int(client_start_s) <= logged.start_us // 1_000_000 <= client_end_s
+            assert logged.duration_ms <= mine.duration_ms
+    (failed,) = app["req-0007"]
+    assert failed.error == "1062"  # ER_DUP_ENTRY, as PyMySQL reports it
