@@ -212,3 +212,23 @@ def test_sniff_refuses_other_json_lines():
     assert not otlp.sniff(["", "   "])
     assert isinstance(next(otlp.read([(1, "")], ReadOptions())), Skip)
     assert isinstance(next(otlp.read([(1, "{}")], ReadOptions())), Reject)
+
+
+def test_read_db_span_without_text_is_dropped_when_the_line_has_other_records():
+    def span(kind: int, attrs: dict[str, str], sid: str) -> dict:
+        return {
+            "traceId": T1,
+            "spanId": sid,
+            "kind": kind,
+            "startTimeUnixNano": str(BASE_NS),
+            "endTimeUnixNano": str(BASE_NS + 2_000_000),
+            "attributes": [{"key": k, "value": {"stringValue": v}} for k, v in attrs.items()],
+        }
+
+    spans = [
+        span(3, {"db.system.name": "postgresql"}, "1111111111111111"),
+        span(2, {"http.request.method": "GET", "http.route": "/a"}, "2222222222222222"),
+    ]
+    line = json.dumps({"resourceSpans": [{"scopeSpans": [{"spans": spans}]}]})
+    records = list(otlp.read([(1, line)], ReadOptions()))
+    assert [(type(r).__name__, r.lines) for r in records] == [("Request", 1)]

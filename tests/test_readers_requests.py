@@ -6,6 +6,7 @@ way ingest reads them: bytes decoded as UTF-8 with replacement, split on newline
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 from zoneinfo import ZoneInfo
 
@@ -469,3 +470,29 @@ def test_access_log_method_and_path_fields_instead_of_request_line():
         200,
         12.0,
     )
+
+
+@pytest.mark.parametrize(
+    ("traceparent", "expected"),
+    [
+        # W3C Trace Context, "Traceparent Header" examples and rules (version ff and all-zero ids invalid).
+        (
+            "00-4bf92f3577b34da6a3ce929d0e0e4736-00f067aa0ba902b7-01",
+            "4bf92f3577b34da6a3ce929d0e0e4736",
+        ),
+        (
+            "00-4bf92f3577b34da6a3ce929d0e0e4736-00f067aa0ba902b7-00",
+            "4bf92f3577b34da6a3ce929d0e0e4736",
+        ),
+        ("ff-4bf92f3577b34da6a3ce929d0e0e4736-00f067aa0ba902b7-01", None),
+        ("00-00000000000000000000000000000000-00f067aa0ba902b7-01", None),
+        ("00-4BF92F3577B34DA6A3CE929D0E0E4736-00F067AA0BA902B7-01", None),  # upper case: not valid
+        ("-", None),
+    ],
+)
+def test_requests_jsonl_traceparent_field_gives_trace_id(traceparent, expected):
+    line = json.dumps(
+        {"time": "2024-03-05T14:02:11Z", "path": "/a", "duration_ms": 1, "traceparent": traceparent}
+    )
+    (got,) = requests_jsonl.read([(1, line)], ReadOptions())
+    assert got.trace_id == expected

@@ -115,6 +115,8 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
         values = {ours: _cell(fields[i]) for ours, i in columns}
         record = build_request(number, values, unit, tz)
         record.lines = used
+        if type(record) is Reject:
+            record.excerpt = text[:EXCERPT]
         yield record
 
 

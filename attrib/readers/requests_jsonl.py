@@ -346,7 +346,10 @@ def _record(
     tz: ZoneInfo | None,
 ) -> Record:
     if isinstance(obj, dict):
-        return build_request(number, get(obj), unit, tz)
+        record = build_request(number, get(obj), unit, tz)
+        if type(record) is Reject:
+            record.excerpt = text[:EXCERPT]
+        return record
     if obj is _BLANK:
         return Skip(number, "blank")
     if obj is _LONG:
