@@ -201,17 +201,23 @@ def bootstrap_percentiles(
     return low, high
 
 
-def _resample(x: np.ndarray, statistic, resamples: int, seed) -> np.ndarray:
-    """Bootstrap distribution of ``statistic`` (maps (b, n) -> (k, b)); returns shape (k, B)."""
+def bootstrap_blocks(n: int, resamples: int, seed: int | np.random.Generator = 0):
+    """Yield index matrices (b, n) of bootstrap resamples, ``resamples`` rows in all.
+
+    The draws are ``rng.integers(0, n, (B, n))`` split into row blocks (the same stream as one draw),
+    each block at most a few million values so memory stays bounded.
+    """
     if resamples < 1:
         raise UsageError(f"--resamples must be at least 1, not {resamples}")
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
-    n = x.size
     block = max(1, min(resamples, _BLOCK_VALUES // max(n, 1)))
-    parts = []
     for done in range(0, resamples, block):
-        b = min(block, resamples - done)
-        parts.append(np.atleast_2d(statistic(x[rng.integers(0, n, (b, n))])))
+        yield rng.integers(0, n, (min(block, resamples - done), n))
+
+
+def _resample(x: np.ndarray, statistic, resamples: int, seed) -> np.ndarray:
+    """Bootstrap distribution of ``statistic`` (maps (b, n) -> (k, b)); returns shape (k, B)."""
+    parts = [np.atleast_2d(statistic(x[idx])) for idx in bootstrap_blocks(x.size, resamples, seed)]
     return np.concatenate(parts, axis=1)
 
 
