@@ -14,9 +14,12 @@ from functools import cache
 MAX_TEMPLATE = 4000  # characters kept before the truncation marker
 
 _TOKEN = re.compile(
-    r"""'\?'|"(?:[^"]|"")*"?|`(?:[^`]|``)*`?|\[[^\]]*\]?|[A-Za-z_\x80-\uffff][\w$\x80-\uffff]*"""
-    r"""|\d+|::|<>|!=|<=|>=|\|\||->>|->|#>>|#>|\S""",
+    r"""'\?'|"(?:[^"]|"")*"?|`(?:[^`]|``)*`?|[A-Za-z_\x80-\uffff][\w$\x80-\uffff]*"""
+    r"""|\d+|::|<>|!=|<=|>=|\|\||->>|->|#>>|#>|#-|@>|<@|&&|\?\||\?&|!~\*|!~|~\*|<<|>>|@@|\S""",
     re.DOTALL,
+)
+_WORD = re.compile(
+    r"""'\?'|"(?:[^"]|"")*"?|`(?:[^`]|``)*`?|([A-Za-z_\x80-\uffff][\w$\x80-\uffff]*)""", re.DOTALL
 )
 
 # Words written in upper case in templates. sqlglot's keyword table covers most; the rest are
@@ -56,6 +59,22 @@ def cap(template: str, whole: str | None = None) -> str:
 def tokens(shape: str) -> list[str]:
     """Split a shape into tokens: masks, quoted names, words, numbers, operators."""
     return _TOKEN.findall(shape)
+
+
+def _word_case(tok: str, kw: frozenset[str], folds_case: bool) -> str:
+    upper = tok.upper()
+    if upper in kw:
+        return upper
+    if folds_case and tok.isascii():
+        return tok.lower()
+    return tok
+
+
+def recase(shape: str, kw: frozenset[str], folds_case: bool) -> str:
+    """The shape with keyword and name case made uniform; quoted names and spacing untouched."""
+    return _WORD.sub(
+        lambda m: m.group() if m.group(1) is None else _word_case(m.group(1), kw, folds_case), shape
+    )
 
 
 def normalize_words(shape: str, kw: frozenset[str], folds_case: bool) -> list[str]:

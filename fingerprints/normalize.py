@@ -168,8 +168,7 @@ def _prepare(shape: str, dialect: str, folds_case: bool) -> str:
         shape = _BACKTICK.sub(
             lambda m: '"' + m.group(1).replace("``", "`").replace('"', '""') + '"', shape
         )
-    words = fallback.normalize_words(shape, fallback.keywords(dialect), folds_case)
-    return " ".join(words)
+    return fallback.recase(shape, fallback.keywords(dialect), folds_case)
 
 
 def _parse(text: str, dialect: str) -> list[exp.Expr] | None:
