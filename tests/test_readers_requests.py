@@ -11,6 +11,8 @@ from pathlib import Path
 from zoneinfo import ZoneInfo
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from attrib.errors import MappingError, TimezoneError
 from attrib.readers import access_log, otlp, requests_csv, requests_jsonl
@@ -496,3 +498,30 @@ def test_requests_jsonl_traceparent_field_gives_trace_id(traceparent, expected):
     )
     (got,) = requests_jsonl.read([(1, line)], ReadOptions())
     assert got.trace_id == expected
+
+
+# Property check (hypothesis): after a well-formed first line, arbitrary lines never raise and every
+# line is accounted for exactly once.
+VALID_FIRST = {
+    "requests-jsonl": '{"time":"2024-03-05T14:02:11Z","path":"/a","duration_ms":1}',
+    "requests-csv": "time,path,duration_ms",
+    "access-log": '192.0.2.1 - - [05/Mar/2024:14:02:11 +0000] "GET /a HTTP/1.1" 200 1 "-" "ua" r 0.001',
+    "otlp-json": '{"resourceSpans":[]}',
+}
+_NOISE = st.lists(
+    st.sampled_from(
+        [*'{}[]",:;/\\ -.0123456789aeTZ\x00\ufffd', "null", "GET ", '"time"', "+0000]"]
+    ),
+    max_size=40,
+).map("".join)
+
+
+@pytest.mark.parametrize("fmt", sorted(VALID_FIRST))
+@settings(max_examples=40, deadline=None)
+@given(noise=st.lists(_NOISE, max_size=12))
+def test_read_arbitrary_lines_are_all_accounted_for(fmt, noise):
+    lines = [VALID_FIRST[fmt], *noise]
+    options = ReadOptions(access_format=NGINX_TIMED)
+    records = list(READERS[fmt].read(enumerate(lines, 1), options))
+    covered = [r.line + i for r in records for i in range(r.lines)]
+    assert covered == list(range(1, len(lines) + 1))

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from attrib.routes import derive_route, url_path
 
@@ -67,3 +69,24 @@ def test_derive_route_is_idempotent_on_its_own_output():
 )
 def test_url_path_drops_scheme_host_query_and_fragment(target, path):
     assert url_path(target) == path
+
+
+# Property checks (hypothesis): whatever the path, the route is a clean, stable template.
+_SEGMENTS = st.one_of(
+    st.integers(min_value=0, max_value=10**12).map(str),
+    st.uuids().map(str),
+    st.sampled_from(["orders", "loaves", "v2", "api", "rye-sourdough-2024", "a.b", ""]),
+    st.text(alphabet="abcdef0123456789", min_size=1, max_size=40),
+    st.text(min_size=0, max_size=12).filter(lambda s: "/" not in s),
+)
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.lists(_SEGMENTS, max_size=6), st.text(max_size=10))
+def test_derive_route_any_path_gives_a_clean_idempotent_route(segments, query):
+    path = "/" + "/".join(segments) + "?" + query
+    route = derive_route(path)
+    assert route.startswith("/")
+    assert "?" not in route and "#" not in route
+    assert "//" not in route
+    assert derive_route(route) == route
