@@ -525,3 +525,20 @@ def test_read_arbitrary_lines_are_all_accounted_for(fmt, noise):
     records = list(READERS[fmt].read(enumerate(lines, 1), options))
     covered = [r.line + i for r in records for i in range(r.lines)]
     assert covered == list(range(1, len(lines) + 1))
+
+
+def test_requests_csv_tab_delimited_header_is_detected():
+    lines = ["time\tpath\tduration_ms", "2024-03-05T14:02:11Z\t/orders/5\t2"]
+    assert requests_csv.sniff(lines)
+    records = list(requests_csv.read(enumerate(lines, 1), ReadOptions()))
+    assert [(r.route, r.elapsed_ms) for r in requests(records)] == [("/orders/{id}", 2.0)]
+
+
+def test_requests_csv_stray_quote_gives_up_after_max_row_lines():
+    row = "2024-03-05T14:02:11Z,/orders/{n},2"
+    lines = ["time,path,duration_ms", '2024-03-05T14:02:11Z,"/stray,2']
+    lines += [row.format(n=n) for n in range(requests_csv.MAX_ROW_LINES + 10)]
+    records = list(requests_csv.read(enumerate(lines, 1), ReadOptions()))
+    assert rejects(records) == [(2, "unterminated quoted field")]
+    assert len(requests(records)) == requests_csv.MAX_ROW_LINES + 10
+    assert sum(r.lines for r in records) == len(lines)
