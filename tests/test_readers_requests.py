@@ -542,3 +542,11 @@ def test_requests_csv_stray_quote_gives_up_after_max_row_lines():
     assert rejects(records) == [(2, "unterminated quoted field")]
     assert len(requests(records)) == requests_csv.MAX_ROW_LINES + 10
     assert sum(r.lines for r in records) == len(lines)
+
+
+def test_requests_jsonl_field_names_are_found_after_a_long_garbage_preamble():
+    good = '{"time":"2024-03-05T14:02:11Z","path":"/orders/5","duration_ms":2}'
+    lines = ["Traceback (most recent call last):"] * 150 + [good] * 3
+    records = list(requests_jsonl.read(enumerate(lines, 1), ReadOptions()))
+    assert len(rejects(records)) == 150
+    assert [r.line for r in requests(records)] == [151, 152, 153]

@@ -2,9 +2,10 @@
 
 Fields are found by name. ``ReadOptions.request_fields`` maps our names to the log's names (dotted names
 reach into nested objects, ``http.route`` is tried as a flat key first); unmapped fields try the usual
-names in :data:`DEFAULTS`. Which name is used is decided once per file, on the first
-:data:`PROBE` records; a mapped name that none of them has raises :class:`~attrib.errors.MappingError`,
-and so does a log in which no name for a required field (a time, a duration, a route or path) appears.
+names in :data:`DEFAULTS`. Which name is used is decided once per file, on the first :data:`PROBE`
+records (looked for in the first :data:`PROBE_LINES` lines); a mapped name that none of them has raises
+:class:`~attrib.errors.MappingError`, and so does a log in which no name for a required field (a time,
+a duration, a route or path) appears.
 
 Time: ``timestamp`` is read as the time the line was written, i.e. the request's **end** (loggers write
 the line when the response is done), so start = timestamp − elapsed. A ``start`` field (``start_time``,
@@ -26,7 +27,6 @@ import json
 import math
 import re
 from collections.abc import Callable, Iterable, Iterator
-from itertools import islice
 from zoneinfo import ZoneInfo
 
 from attrib.comments import trace_id as traceparent_trace_id
@@ -38,7 +38,8 @@ from attrib.timeparse import check_range, timestamp_us
 NAME = "requests-jsonl"
 KIND = "requests"
 
-PROBE = 100
+PROBE = 100  # records that decide the field names
+PROBE_LINES = 10_000  # lines searched for those records before giving up
 MAX_LINE = 1 << 20  # a request log line over 1 MiB is not a request (common practice, no source)
 EXCERPT = 200
 
@@ -324,9 +325,15 @@ def to_trace_id(value: object) -> str | None:
 def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Record]:
     """Read a JSON-lines request log; see the module docstring for field names and units."""
     it = iter(lines)
-    probe = list(islice(it, PROBE))
-    parsed = [(number, text, _parse(text)) for number, text in probe]
-    objects = [obj for _, _, obj in parsed if isinstance(obj, dict)]
+    parsed: list[tuple[int, str, object]] = []
+    objects: list[dict[str, object]] = []
+    for number, text in it:
+        obj = _parse(text)
+        parsed.append((number, text[:EXCERPT], obj))
+        if isinstance(obj, dict):
+            objects.append(obj)
+        if len(objects) >= PROBE or len(parsed) >= PROBE_LINES:
+            break
     plan = FieldPlan.resolve(objects, options.request_fields, "request log")
     get = plan.getter()
     unit = plan.elapsed[1] if plan.elapsed else "ms"
