@@ -142,6 +142,39 @@ class Store:
             self.con, min_repeats=min_repeats, since=since, until=until, route=route, top=top
         )
 
+    def whatif(
+        self,
+        scenario: Any,
+        *,
+        since: datetime | None = None,
+        until: datetime | None = None,
+        resamples: int = 1000,
+        seed: int = 0,
+    ) -> pd.DataFrame:
+        """Projected per-route figures under a scenario; see :func:`attrib.whatif.whatif`."""
+        from attrib import whatif
+
+        return whatif.whatif(
+            self.con, scenario, since=since, until=until, resamples=resamples, seed=seed
+        )
+
+    def compare(self, before: Any, after: Any, *, other: Store | None = None, **kw: Any) -> Any:
+        """Before/after per-route changes; see :func:`attrib.compare.compare`.
+
+        ``other`` is the store of the "after" side (default: this store).
+        """
+        from attrib import compare
+
+        return compare.compare(self.con, (other or self).con, before=before, after=after, **kw)
+
+    def check(
+        self, budgets: Any, *, since: datetime | None = None, until: datetime | None = None
+    ) -> pd.DataFrame:
+        """Budget checks per route (``budgets``: a file path or limits); see :func:`attrib.budgets.check`."""
+        from attrib import budgets as _budgets
+
+        return _budgets.check(self.con, budgets, since=since, until=until)
+
 
 def open(path: str | os.PathLike[str], *, read_only: bool = False) -> Store:  # noqa: A001
     """Open (or create) the store at ``path``; see :class:`Store`."""

@@ -29,7 +29,7 @@ import pandas as pd
 
 from attrib import nplus1
 from attrib.attribute import request_filter
-from attrib.errors import InputError
+from attrib.errors import BudgetExceeded, InputError
 
 _KEY = re.compile(r"^(queries|db_ms)_p(100|[1-9][0-9]?(?:_[0-9]+)?)$")
 COLUMNS = ["route", "pattern", "budget", "limit", "actual", "requests", "status"]
@@ -211,3 +211,14 @@ def _nplus1_counts(
     found = nplus1.find(con, since=since, until=until)
     loops = found[found["kind"] == "n_plus_one"]
     return loops.groupby("route").size().to_dict()
+
+
+def raise_if_over(result: pd.DataFrame) -> None:
+    """Raise :class:`attrib.errors.BudgetExceeded` (exit status 1) when any row is over budget."""
+    over = result[result["status"] == "over"]
+    if len(over):
+        first = over.iloc[0]
+        raise BudgetExceeded(
+            f"{len(over)} budget(s) exceeded, e.g. {first['route']} {first['budget']} = "
+            f"{first['actual']:g} > {first['limit']:g}"
+        )

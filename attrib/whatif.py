@@ -388,7 +388,7 @@ def _per_request_sql(where: str) -> str:
         FROM step3 GROUP BY ALL
     ),
     j AS (
-        SELECT tot.*, sav.rs IS NOT NULL AS affected,
+        SELECT tot.*, coalesce(sav.db_saved <> 0 OR sav.gap <> 0 OR sav.dropped > 0, false) AS affected,
                coalesce(sav.target_ms, 0) AS target_ms, coalesce(sav.db_saved, 0) AS db_saved,
                least(coalesce(sav.gap, 0), greatest(tot.elapsed_ms - tot.db_ms, 0)) AS gap_saved,
                coalesce(sav.dropped, 0) AS dropped

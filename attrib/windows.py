@@ -162,3 +162,36 @@ def same_hours(hours: str, day: date | str, tz: str = "UTC") -> Window:
     return Window(
         to_utc(start_local, tz), to_utc(end_local, tz), tz, f"{day.isoformat()} {hours} {tz}"
     )
+
+
+def resolve(
+    before: str | None = None,
+    after: str | None = None,
+    *,
+    tz: str = "UTC",
+    hours: str | None = None,
+    before_date: str | None = None,
+    after_date: str | None = None,
+) -> tuple[Window | None, Window | None]:
+    """Turn the compare options into two windows (None = no window on that side).
+
+    Either explicit windows (``before``/``after`` as START/END) or the same ``hours`` on two dates
+    (``before_date``/``after_date``), not both.
+
+    >>> b, a = resolve(hours="09:00-12:00", before_date="2026-11-23", after_date="2026-11-30",
+    ...                tz="Europe/Zurich")
+    >>> (b.start.isoformat(), a.start.isoformat(), b.weekday == a.weekday)
+    ('2026-11-23T08:00:00', '2026-11-30T08:00:00', True)
+    """
+    explicit = before is not None or after is not None
+    by_hours = hours is not None or before_date is not None or after_date is not None
+    if explicit and by_hours:
+        raise UsageError("use either --before/--after or --hours with --before-date/--after-date")
+    if by_hours:
+        if hours is None or before_date is None or after_date is None:
+            raise UsageError("--hours needs both --before-date and --after-date")
+        return same_hours(hours, before_date, tz), same_hours(hours, after_date, tz)
+    return (
+        parse_window(before, tz) if before is not None else None,
+        parse_window(after, tz) if after is not None else None,
+    )

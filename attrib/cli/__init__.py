@@ -31,6 +31,9 @@ _COMMANDS["nplus1"] = "rank:nplus1_cmd"
 _COMMANDS["ingest"] = "ingest:ingest_command"
 _COMMANDS["coverage"] = "coverage:coverage_command"
 _COMMANDS["fingerprint"] = "fingerprint:fingerprint_command"
+_COMMANDS["whatif"] = "verify:whatif_cmd"
+_COMMANDS["compare"] = "verify:compare_cmd"
+_COMMANDS["check"] = "verify:check_cmd"
 
 
 class _Group(click.Group):
