@@ -1,0 +1,261 @@
+"""The Ridgeline demo: deterministic logs, readable by our readers, planted findings recovered.
+
+The planted patterns are our own invention (attrib.demo); the checks below compare attrib's findings
+with that ground truth. Run with ``-s`` to see the recall/precision line.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+from collections import Counter, defaultdict
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+import attrib
+from attrib import demo
+from attrib.cli import cli
+from attrib.readers import get as get_reader
+from attrib.records import ReadOptions, Reject, Request, Skip, Statement
+from fingerprints import fingerprint
+
+SMALL = 2_000  # requests: big enough for every planted pattern to run, small enough to be quick
+SEED = 11
+
+
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory: pytest.TempPathFactory):
+    """`attrib demo --format json` on a small size, and the truth of the same logs."""
+    out = tmp_path_factory.mktemp("demo")
+    result = CliRunner().invoke(
+        cli,
+        [
+            "demo",
+            "--out",
+            str(out),
+            "--seed",
+            str(SEED),
+            "--requests",
+            str(SMALL),
+            "--format",
+            "json",
+        ],
+    )
+    truth = demo.generate(tmp_path_factory.mktemp("truth"), seed=SEED, requests=SMALL)
+    return out, result, truth
+
+
+def _sha(path: Path) -> bytes:
+    return path.read_bytes()
+
+
+def test_generate_same_seed_writes_identical_bytes(tmp_path: Path) -> None:
+    a = demo.generate(tmp_path / "a", seed=3, requests=600)
+    b = demo.generate(tmp_path / "b", seed=3, requests=600)
+    assert a.queries_path.read_bytes() == b.queries_path.read_bytes()
+    assert a.requests_path.read_bytes() == b.requests_path.read_bytes()
+    assert a.planted == b.planted
+
+
+def test_generate_other_seed_writes_other_bytes(tmp_path: Path) -> None:
+    a = demo.generate(tmp_path / "a", seed=3, requests=600)
+    b = demo.generate(tmp_path / "b", seed=4, requests=600)
+    assert a.queries_path.read_bytes() != b.queries_path.read_bytes()
+    assert a.requests_path.read_bytes() != b.requests_path.read_bytes()
+
+
+def test_generate_counts_match_the_files(tmp_path: Path) -> None:
+    t = demo.generate(tmp_path, requests=800)
+    assert t.requests_path.read_text().count("\n") == t.request_lines == t.requests == 800
+    text = t.queries_path.read_text()
+    assert text.count("\n") == t.query_lines
+    assert text.count("  statement: ") == t.statements
+    assert text.count(" ERROR:  ") == t.failed_statements
+    assert len(re.findall(r"LOG:  (connection|disconnection|checkpoint)", text)) == t.other_lines
+
+
+def test_generate_log_lines_follow_postgresql_stderr_format(tmp_path: Path) -> None:
+    # Shapes as written by a real PostgreSQL 15 server with log_line_prefix '%m [%p] %q%u@%d '
+    # (captured on this machine; see docs/demo.md): prefixed lines, TAB continuation lines only.
+    t = demo.generate(tmp_path, requests=400)
+    prefixed = re.compile(
+        r"\d{4}-\d\d-\d\d \d\d:\d\d:\d\d\.\d{3} UTC \[\d+\] "
+        r"(?:(?:ridge@ridgeline|\[unknown\]@\[unknown\]) )?(?:LOG|ERROR|DETAIL|STATEMENT):  \S"
+    )
+    times = []
+    for line in t.queries_path.read_text().splitlines():
+        if line.startswith("\t"):
+            continue
+        assert prefixed.match(line), line
+        times.append(line[:23])
+    assert times == sorted(times)  # written in log-time order, like a server does
+
+
+def test_generate_requests_are_json_lines_with_utc_times(tmp_path: Path) -> None:
+    t = demo.generate(tmp_path, requests=300)
+    rows = [json.loads(line) for line in t.requests_path.read_text().splitlines()]
+    assert list(rows[0]) == [
+        "timestamp", "request_id", "method", "route", "path", "status", "elapsed_ms",
+    ]  # fmt: skip
+    assert all(r["timestamp"].endswith("Z") for r in rows)
+    assert len({r["request_id"] for r in rows}) == 300
+    assert {r["status"] for r in rows} >= {200}
+
+
+def test_generate_only_planted_templates_repeat_within_a_request(tmp_path: Path) -> None:
+    # The truth must be the whole truth: outside the planted patterns no statement shape runs twice
+    # in one request. Shapes here are a crude literal mask, independent of attrib's fingerprints.
+    t = demo.generate(tmp_path, seed=5, requests=1_500)
+    mask = re.compile(r"'(?:[^']|'')*'|\b\d+(?:\.\d+)?\b")
+    tagged = re.compile(r"statement: (.*) /\*request_id='([^']+)',route='([^']+)'\*/$")
+    calls: dict[str, Counter] = defaultdict(Counter)
+    routes = {}
+    for line in t.queries_path.read_text().splitlines():
+        m = tagged.search(line)
+        if m:
+            sql, rid, _route = m.groups()
+            calls[rid][re.sub(r"\?(, \?)+", "?", mask.sub("?", sql))] += 1
+    for line in t.requests_path.read_text().splitlines():
+        row = json.loads(line)
+        routes[row["request_id"]] = row["route"]
+    repeated = {
+        (routes[rid], shape) for rid, c in calls.items() for shape, n in c.items() if n >= 2
+    }
+    planted = {(p.route, re.sub(r"\?(, \?)+", "?", mask.sub("?", p.child_sql))) for p in t.planted}
+    assert repeated == planted
+
+
+def test_generate_files_read_without_rejects(demo_run) -> None:
+    _out, _result, t = demo_run
+    options = ReadOptions()
+    for path, reader, kinds in (
+        (t.queries_path, "pg-stderr", (Statement, Skip)),
+        (t.requests_path, "requests-jsonl", (Request,)),
+    ):
+        lines = path.read_text(encoding="utf-8").splitlines()
+        records = list(get_reader(reader).read(enumerate(lines, 1), options))
+        assert sum(r.lines for r in records) == len(lines)  # every line accounted for
+        assert not [r for r in records if isinstance(r, Reject)]
+        assert all(isinstance(r, kinds) for r in records)
+        if reader == "pg-stderr":
+            statements = [r for r in records if isinstance(r, Statement)]
+            assert len(statements) == t.statements + t.failed_statements
+            assert sum(1 for r in statements if r.error) == t.failed_statements
+            skipped = sum(r.lines for r in records if isinstance(r, Skip))
+            assert skipped == t.other_lines
+
+
+def test_demo_cli_writes_the_same_logs_as_generate(demo_run) -> None:
+    out, result, t = demo_run
+    assert result.exit_code == 0, result.output
+    assert (out / demo.QUERIES_FILE).read_bytes() == t.queries_path.read_bytes()
+    assert (out / demo.REQUESTS_FILE).read_bytes() == t.requests_path.read_bytes()
+
+
+def test_demo_store_accounts_for_every_line(demo_run) -> None:
+    out, _result, t = demo_run
+    with attrib.open(out / demo.STORE_FILE, read_only=True) as s:
+        rows = dict(
+            s.con.execute(
+                "SELECT format, [lines_read, lines_rejected, requests, statements, lines_skipped] "
+                "FROM sources"
+            ).fetchall()
+        )
+    assert rows["requests-jsonl"] == [t.request_lines, 0, t.requests, 0, 0]
+    assert rows["pg-stderr"] == [
+        t.query_lines, 0, 0, t.statements + t.failed_statements, t.other_lines,
+    ]  # fmt: skip
+
+
+def test_nplus1_recovers_every_planted_pattern(demo_run) -> None:
+    out, _result, t = demo_run
+    min_repeats = 3  # attrib's default
+    with attrib.open(out / demo.STORE_FILE, read_only=True) as s:
+        found = s.nplus1(min_repeats=min_repeats)
+    expected = {
+        (p.route, p.kind, fingerprint(p.child_sql, "postgres").id): p
+        for p in t.planted
+        if p.requests(min_repeats)
+    }
+    got = {(r.route, r.kind, r.child_template_id): r for r in found.itertuples(index=False)}
+    hits = expected.keys() & got.keys()
+    recall, precision = len(hits) / len(expected), len(hits) / max(len(got), 1)
+    print(f"\ndemo N+1 recovery: recall {recall:.2f} ({len(hits)}/{len(expected)}), "
+          f"precision {precision:.2f} ({len(hits)}/{len(got)})")  # fmt: skip
+    assert len(expected) == 12
+    assert recall == 1.0
+    # Every other template runs at most once per request (previous test), so any extra finding
+    # would be a false one: precision must be exact too.
+    assert precision == 1.0
+    for key in hits:  # and the counts are the planted ones
+        assert got[key].requests == expected[key].requests(min_repeats)
+        assert got[key].repeats_mean == pytest.approx(expected[key].repeats_mean(min_repeats))
+        assert got[key].repeats_max == max(expected[key].lengths)
+
+
+def test_demo_cli_prints_summary_as_json(demo_run) -> None:
+    _out, result, _t = demo_run
+    doc = json.loads(result.stdout)
+    assert set(doc) == {"routes", "templates", "nplus1", "advice", "next_commands"}
+    assert 1 <= len(doc["routes"]) <= 5 and 1 <= len(doc["nplus1"]) <= 5
+    assert doc["advice"] and any("N+1" in a for a in doc["advice"])
+    assert any(c.startswith("attrib nplus1 --store ") for c in doc["next_commands"])
+    assert "Ingesting" in result.stderr
+
+
+def test_demo_cli_output_shows_no_literal_values(demo_run) -> None:
+    _out, result, t = demo_run
+    assert len(t.literals) > 100
+    leaked = [lit for lit in t.literals if lit in result.stdout]
+    assert leaked == []
+    assert "@example." not in result.stdout
+
+
+def test_demo_cli_table_output_has_titles_and_advice(tmp_path: Path) -> None:
+    result = CliRunner().invoke(cli, ["demo", "--out", str(tmp_path), "--requests", "300"])
+    assert result.exit_code == 0, result.output
+    for title in ("Top routes", "Top query templates", "Top N+1", "What to look at first"):
+        assert title in result.stdout
+    assert f"attrib routes --store {tmp_path / demo.STORE_FILE}" in result.stdout
+
+
+def test_advice_names_redundant_repeat_and_slow_route_outside_database() -> None:
+    routes = pd.DataFrame(
+        {
+            "route": ["/a", "/slow"],
+            "requests": [100, 10],
+            "db_ms_total": [500.0, 5.0],
+            "db_share": [0.99, 0.01],
+            "db_fraction_p50": [0.6, 0.02],
+            "elapsed_ms_p95": [20.0, 900.0],
+        }
+    )
+    nplus1 = pd.DataFrame(
+        {
+            "route": ["/a"],
+            "kind": ["redundant"],
+            "child_template_id": ["0123456789abcdef"],
+            "parent_template_id": [None],
+            "requests": [100],
+            "repeats_mean": [5.0],
+            "saving_ms_estimate": [200.0],
+        }
+    )
+    lines = demo.advice(routes, pd.DataFrame(), nplus1)
+    assert lines[0] == (
+        "/a runs template 01234567… 5.0 times per request with the same values (a redundant "
+        "repeat); reusing the first result would save about 2.0 ms per request, 40% of that "
+        "route's database time."
+    )
+    assert lines[1].startswith("/a has the largest share of database time (99% over 100 requests)")
+    assert lines[2].startswith("/slow is slow (p95 900 ms) but spends only 2% of a typical request")
+
+
+def test_planted_pattern_counts_by_minimum_length() -> None:
+    p = demo.PlantedPattern("GET", "/x", "n_plus_one", "SELECT 1", None, {2: 4, 3: 1, 5: 1})
+    assert p.requests() == 6 and p.requests(3) == 2
+    assert p.repeats_mean(3) == pytest.approx(4.0)
+    assert p.repeats_mean(6) == 0.0
