@@ -202,9 +202,55 @@ def param_hash(key: bytes, literals: Sequence[str] | None, params: Sequence[str]
     >>> param_hash(b"k", ("7",), None) == param_hash(b"k", ("8",), None)
     False
     """
-    text = repr((tuple(literals or ()), tuple(params) if params is not None else None))
-    digest = blake2b(text.encode("utf-8", "surrogatepass"), key=key, digest_size=8).digest()
-    return int.from_bytes(digest, "big")
+    return param_hashes(key, [literals], [params])[0]
+
+
+def param_hashes(
+    key: bytes,
+    literals: Sequence[Sequence[str] | None],
+    params: Sequence[Sequence[str] | None],
+) -> list[int]:
+    """:func:`param_hash` of many statements (one keyed hasher, copied per statement)."""
+    base = blake2b(key=key, digest_size=8)
+    out = []
+    for lits, par in zip(literals, params, strict=True):
+        text = repr((tuple(lits or ()), tuple(par) if par is not None else None))
+        h = base.copy()
+        h.update(text.encode("utf-8", "surrogatepass"))
+        out.append(int.from_bytes(h.digest(), "big"))
+    return out
+
+
+def comment_ids(sqls: Sequence[str], key: str) -> tuple[list[str | None], list[str | None]]:
+    """Request ids and trace ids of the trailing sqlcommenter comments of ``sqls``.
+
+    Same result as :func:`attrib.comments.request_keys` per statement; each distinct comment is
+    parsed once (the statements of one request usually share theirs).
+
+    >>> comment_ids(["SELECT 1 /*request_id='a'*/", "SELECT 2 /*request_id='a'*/", "SELECT 3"], "request_id")
+    (['a', 'a', None], [None, None, None])
+    """
+    cache: dict[str, tuple[str | None, str | None]] = {}
+    req: list[str | None] = []
+    trace: list[str | None] = []
+    none = (None, None)
+    for sql in sqls:
+        tail = sql.rstrip(" \t\r\n;")
+        if not tail.endswith("*/"):
+            req.append(None)
+            trace.append(None)
+            continue
+        start = tail.rfind("/*", 0, len(tail) - 2)
+        if start < 0:
+            ids = none
+        else:
+            body = tail[start:]
+            ids = cache.get(body)  # type: ignore[assignment]
+            if ids is None:
+                ids = cache[body] = request_keys(body, key)
+        req.append(ids[0])
+        trace.append(ids[1])
+    return req, trace
 
 
 @dataclass
@@ -239,19 +285,13 @@ def digest_statements(
     """
     import fingerprints
 
-    batch = fingerprints.fingerprint_many(sqls, dialect, with_literals=True)
-    hashes = [param_hash(key, lits, p) for lits, p in zip(batch.literals, params, strict=True)]
+    batch = fingerprints.fingerprint_many(sqls, dialect, with_literals=True, processes=1)
+    hashes = param_hashes(key, batch.literals, params)
     if comment_key is None:
         none: list[str | None] = [None] * len(sqls)
         return Digest(list(batch.ids), dict(batch.templates), hashes, none, none)
-    keys = [request_keys(sql, comment_key) for sql in sqls]
-    return Digest(
-        list(batch.ids),
-        dict(batch.templates),
-        hashes,
-        [k[0] for k in keys],
-        [k[1] for k in keys],
-    )
+    c_req, c_trace = comment_ids(sqls, comment_key)
+    return Digest(list(batch.ids), dict(batch.templates), hashes, c_req, c_trace)
 
 
 def ingest(

@@ -71,17 +71,31 @@ def open_binary(path: str | os.PathLike[str]) -> BinaryIO:
     return open(path, "rb")
 
 
-def decode_lines(stream: BinaryIO) -> Iterator[str]:
+def decode_lines(stream: BinaryIO, block: int = 1 << 20) -> Iterator[str]:
     """Decode a byte stream into lines without their ends (invalid UTF-8 becomes U+FFFD).
 
     >>> list(decode_lines(io.BytesIO(b"a\\r\\nb\\xff\\nc")))
     ['a', 'b\\ufffd', 'c']
     """
-    text = io.TextIOWrapper(stream, encoding="utf-8", errors="replace", newline="\n")
-    for line in text:
-        if line.endswith("\n"):
-            line = line[:-2] if line.endswith("\r\n") else line[:-1]
+    for _, line in numbered_lines(stream, block):
         yield line
+
+
+def numbered_lines(stream: BinaryIO, block: int = 1 << 20) -> Iterator[tuple[int, str]]:
+    """``(line_number, text)`` pairs of a byte stream, numbered from 1, decoded block by block."""
+    text = io.TextIOWrapper(stream, encoding="utf-8", errors="replace", newline="")
+    rest = ""
+    n = 0
+    while True:
+        chunk = text.read(block)
+        if not chunk:
+            break
+        parts = (rest + chunk).replace("\r\n", "\n").split("\n")
+        rest = parts.pop()  # unfinished line (a "\r\n" cut in two is joined next time)
+        yield from zip(range(n + 1, n + 1 + len(parts)), parts, strict=True)
+        n += len(parts)
+    if rest:
+        yield n + 1, rest[:-1] if rest.endswith("\r") else rest
 
 
 def head(path: str | os.PathLike[str], n: int = HEAD_LINES) -> list[str]:
@@ -107,7 +121,8 @@ def head(path: str | os.PathLike[str], n: int = HEAD_LINES) -> list[str]:
 class LineSource:
     """The numbered lines of one file, counting how many were read and how far into the file.
 
-    Iterating yields ``(line_number, text)`` pairs numbered from 1.
+    Iterate it once: it yields ``(line_number, text)`` pairs numbered from 1. ``lines_read`` is exact
+    once the file is read to its end (see :meth:`drain`).
     """
 
     def __init__(self, path: str | os.PathLike[str]) -> None:
@@ -121,24 +136,37 @@ class LineSource:
             else self._file
         )
         self._file.seek(0)
-        self._lines = enumerate(decode_lines(self._stream), 1)
+        self._block = 1 << 20
+        self._iter = self._generate()
 
     def __iter__(self) -> Iterator[tuple[int, str]]:
+        return self._iter
+
+    def _generate(self) -> Iterator[tuple[int, str]]:
+        """Yield the numbered lines; ``lines_read`` counts whole decoded blocks ahead of the caller."""
+        text = io.TextIOWrapper(self._stream, encoding="utf-8", errors="replace", newline="")
+        rest = ""
         try:
-            for n, line in self._lines:
-                self.lines_read = n
-                yield n, line
+            while True:
+                chunk = text.read(self._block)
+                if not chunk:
+                    break
+                parts = (rest + chunk).replace("\r\n", "\n").split("\n")
+                rest = parts.pop()
+                n = self.lines_read
+                self.lines_read = n + len(parts)
+                yield from zip(range(n + 1, n + 1 + len(parts)), parts, strict=True)
         except (OSError, EOFError) as exc:  # e.g. a truncated gzip member
             raise FormatError(
                 f"{self.path}: cannot read past line {self.lines_read} ({exc})"
             ) from None
+        if rest:
+            self.lines_read += 1
+            yield self.lines_read, rest[:-1] if rest.endswith("\r") else rest
 
     def drain(self) -> int:
-        """Count the lines nobody read yet (a reader that stopped early) and return how many."""
-        before = self.lines_read
-        for _ in self:
-            pass
-        return self.lines_read - before
+        """Read to the end the lines a reader left (it stopped early); return how many there were."""
+        return sum(1 for _ in self._iter)
 
     def position(self) -> int:
         """Bytes of the file (as stored) consumed so far."""

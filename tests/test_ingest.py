@@ -343,3 +343,22 @@ def test_parse_id_sources_rejects_unknown_and_repeated_names():
         ingest.parse_id_sources("comment,comment")
     with pytest.raises(Exception, match="at most once"):
         ingest.parse_id_sources("header")
+
+
+@pytest.mark.parametrize(
+    "sql",
+    [
+        "SELECT 1",
+        "SELECT 1 /*request_id='r%2F1'*/",
+        "SELECT 1 /*request_id='a',traceparent='00-4bf92f3577b34da6a3ce929d0e0e4736-00f067aa0ba902b7-01'*/;",
+        "SELECT '/*' /*request_id='x\\'y'*/  ",
+        "SELECT 1 /* plain comment */",
+        "SELECT 1 */",
+        "/*request_id='only'*/",
+    ],
+)
+def test_comment_ids_agree_with_request_keys(sql):
+    from attrib.comments import request_keys
+
+    req, trace = ingest.comment_ids([sql, sql], "request_id")
+    assert (req[0], trace[0]) == (req[1], trace[1]) == request_keys(sql, "request_id")

@@ -86,6 +86,7 @@ def test_line_source_drain_counts_lines_a_reader_left(tmp_path):
     path = tmp_path / "x.log"
     path.write_text("a\nb\nc\nd\n")
     with sources.LineSource(path) as lines:
+        lines._block = 3  # several blocks
         it = iter(lines)
         next(it)
         next(it)
@@ -98,3 +99,18 @@ def test_line_source_truncated_gzip_is_a_format_error(tmp_path):
     path.write_bytes(gzip.compress(b"line\n" * 10_000)[:-20])
     with sources.LineSource(path) as lines, pytest.raises(FormatError, match="cannot read past"):
         list(lines)
+
+
+def test_line_source_small_blocks_give_the_same_lines(tmp_path):
+    path = tmp_path / "x.log"
+    data = "alpha\r\nbeta\n\ngamma \u00e9\r\n" * 5 + "last\r"
+    path.write_bytes(data.encode())
+    with sources.LineSource(path) as whole:
+        expected = list(whole)
+    for block in (1, 2, 3, 7):
+        with sources.LineSource(path) as lines:
+            lines._block = block
+            assert list(lines) == expected
+            assert lines.lines_read == len(expected) == 21
+    assert expected[-1] == (21, "last")
+    assert expected[:3] == [(1, "alpha"), (2, "beta"), (3, "")]
