@@ -12,12 +12,12 @@ reference, not checked on a MySQL server here: start = time - Query_time); the `
 last, the entry's own or inherited ``# Time:`` line (then ``options.tz`` is needed, else
 :class:`~attrib.errors.TimezoneError`).
 
-Seen on a real MariaDB 10.11 server (tests/test_readers_mysql_server.py): ``SET timestamp=`` is the second
-in which the statement *started* (a 1.5 s ``SLEEP`` started at :15.1 is logged with ``SET timestamp`` =
-:15), and the ``YYMMDD hh:mm:ss`` ``# Time:`` line shows the same start second in the server's local time
-zone, written only when that second differs from the last one written; so an entry without ``# Time:``
-started in the second of the last one. Starts from MariaDB logs therefore have one-second resolution
-(truncated), and durations are exact to the microsecond.
+Seen on a real MariaDB 10.11 server (tests/test_readers_mysql_server.py): ``SET timestamp=`` is the
+second in which the statement *started* (a 1.5 s ``SLEEP`` started at :57.1 and ended at :58.6 is
+logged with ``SET timestamp`` and ``# Time:`` both at :57), and the ``YYMMDD hh:mm:ss`` ``# Time:`` line
+shows the same start second in the server's local time zone, written only when that second differs from
+the last one written; so an entry without ``# Time:`` started in the second of the last one. Starts from
+MariaDB logs therefore have one-second resolution (truncated); durations keep microseconds.
 
 Rows. ``rows`` is ``Rows_sent``; for INSERT, UPDATE, DELETE and REPLACE it is ``Rows_affected`` when the
 entry has that field (MariaDB), since DML sends no rows.
@@ -43,8 +43,8 @@ KIND = "statements"
 
 # Lines that start a new entry. MySQL accepts `#` comments inside SQL, so only these known header shapes
 # are treated as headers (log-formats reference, section 2, parser notes).
-_ENTRY_START = ("# Time:", "# User@Host:")
-_LATE_START = ("# Thread_id:", "# Query_time:")
+_STARTS = ("# Time:", "# User@Host:", "# Thread_id:", "# Query_time:")
+_START_TAGS = frozenset(text[2:7] for text in _STARTS)
 _ADMIN = "# administrator command:"
 # Server banner, written whenever the log file is opened (MySQL and MariaDB sql/log.cc, from our
 # log-formats reference; the MariaDB 10.11 shape was seen on the real server).
@@ -54,7 +54,6 @@ _BANNER_TITLES = re.compile(r"^Time\s+Id\s+Command\s+Argument\s*$")
 _USER_HOST = re.compile(
     r"^# User@Host: ([^\[]*)\[([^\]]*)\] @ ([^\[]*)\[([^\]]*)\](?:\s+Id:\s*(\d+))?"
 )
-_FIELD = re.compile(r"([A-Za-z_]+): *(\S*)")
 _USE = re.compile(r"^use (\S+);\s*$")
 # `SET [last_insert_id=N,][insert_id=N,]timestamp=N;` (MySQL manual, "The Slow Query Log": the server
 # writes a SET statement with the timestamp; the optional ids are from our log-formats reference).
@@ -169,7 +168,48 @@ class _Reader:
 
     def header(self, entry: _Entry, text: str) -> None:
         """Read one ``#`` header line into ``entry``."""
-        if text.startswith("# Time:"):
+        tag = text[2:7]
+        if tag == "Query":
+            if not text.startswith("# Query_time:"):
+                return
+            parts = text.split()
+            # "# Query_time: 0.000412  Lock_time: 0.000003 Rows_sent: 1  Rows_examined: 1" and, with
+            # MySQL 8.0.14+ log_slow_extra (MySQL manual, "The Slow Query Log"), more "Name: value"
+            # pairs: Thread_id, Errno, Killed, ..., Start, End.
+            fields = dict(zip(parts[1::2], parts[2::2], strict=False))
+            try:
+                entry.query_time = float(fields["Query_time:"])
+            except (KeyError, ValueError):
+                entry.bad = "unreadable '# Query_time:' line"
+                return
+            entry.rows_sent = _int(fields.get("Rows_sent:"))
+            if len(parts) > 9:
+                entry.errno = _int(fields.get("Errno:"))
+                entry.killed = _int(fields.get("Killed:"))
+                entry.start_extra = fields.get("Start:")
+                if entry.session is None:
+                    entry.session = fields.get("Thread_id:")
+        elif tag == "Threa":
+            # MariaDB: "# Thread_id: 3127  Schema: bakery  QC_hit: No" (MariaDB manual, "Slow Query Log
+            # Extended Statistics"); the Schema value is empty when no database is selected (seen on
+            # the real server: "Schema:   QC_hit: No").
+            parts = text.split()
+            if len(parts) > 2 and parts[1] == "Thread_id:":
+                entry.session = parts[2]
+                if len(parts) > 3 and parts[3] == "Schema:":
+                    nxt = parts[4] if len(parts) > 4 else ""
+                    entry.schema = "" if nxt.endswith(":") else nxt
+        elif tag == "Rows_":
+            if text.startswith("# Rows_affected:"):
+                parts = text.split()
+                entry.rows_affected = _int(parts[2]) if len(parts) > 2 else None
+        elif tag == "User@":
+            match = _USER_HOST.match(text)
+            if match:
+                entry.user = (match.group(2) or match.group(1)).strip() or None
+                if match.group(5):
+                    entry.session = match.group(5)
+        elif tag == "Time:":
             parsed = self.parse_time(text[7:].strip())
             if parsed is None:
                 entry.bad = "unreadable '# Time:' value"
@@ -177,39 +217,6 @@ class _Reader:
                 entry.time = parsed
                 entry.has_time = True
                 self.last_time = parsed
-        elif text.startswith("# User@Host:"):
-            match = _USER_HOST.match(text)
-            if match:
-                entry.user = (match.group(2) or match.group(1)).strip() or None
-                if match.group(5):
-                    entry.session = match.group(5)
-        elif text.startswith("# Thread_id:"):
-            # MariaDB: "# Thread_id: 3127  Schema: bakery  QC_hit: No" (MariaDB manual, "Slow Query Log
-            # Extended Statistics"; the Schema value is empty when no database is selected, as seen on
-            # the real server).
-            fields = dict(_FIELD.findall(text))
-            entry.session = fields.get("Thread_id") or entry.session
-            schema_at = text.find("Schema:")
-            if schema_at >= 0:
-                rest = text[schema_at + 7 :].split()
-                entry.schema = rest[0] if rest and not rest[0].endswith(":") else ""
-        elif text.startswith("# Query_time:"):
-            fields = dict(_FIELD.findall(text))
-            try:
-                entry.query_time = float(fields["Query_time"])
-            except (KeyError, ValueError):
-                entry.bad = "unreadable '# Query_time:' line"
-                return
-            entry.rows_sent = _int(fields.get("Rows_sent"))
-            # MySQL 8.0.14+ log_slow_extra (MySQL manual, "The Slow Query Log"): Errno, Killed, Start.
-            entry.errno = _int(fields.get("Errno"))
-            entry.killed = _int(fields.get("Killed"))
-            if "Start" in fields:
-                entry.start_extra = fields["Start"]
-            if "Thread_id" in fields and entry.session is None:
-                entry.session = fields["Thread_id"]
-        elif text.startswith("# Rows_affected:"):
-            entry.rows_affected = _int(dict(_FIELD.findall(text)).get("Rows_affected"))
         # Any other "#" line (Full_scan, Filesort, explain, a bare "#") carries nothing we keep.
 
     def start_us(self, entry: _Entry) -> int | None:
@@ -268,7 +275,7 @@ class _Reader:
         sql = "\n".join(sql_lines).rstrip()
         sql = sql[:-1]  # the server appends ';' to every statement (MySQL manual, log.cc)
         rows = entry.rows_sent
-        if entry.rows_affected is not None:
+        if entry.rows_affected is not None and entry.rows_affected != rows:
             word = _FIRST_WORD.match(sql)
             if word and word.group(1).lower() in _DML:
                 rows = entry.rows_affected
@@ -309,42 +316,45 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
         if entry is not None:
             if entry.sql is None:
                 # Header part of an entry.
-                if text.startswith("#") and not text.startswith(_ADMIN):
-                    restart = text.startswith("# Time:") or (
-                        text.startswith("# User@Host:") and entry.user is not None
-                    )
-                    if not restart:
+                if text[:1] == "#":
+                    tag = text[2:7]
+                    if tag == "Time:" or (tag == "User@" and entry.user is not None):
+                        pass  # the next entry starts: this one has no statement
+                    elif tag != "admin" or not text.startswith(_ADMIN):
                         entry.count += 1
                         reader.header(entry, text)
                         continue
-                elif _BANNER.match(text):
-                    pass
-                elif entry.set_ts is None and entry.use is None and _USE.match(text):
+                    else:
+                        entry.count += 1
+                        entry.sql = [text]
+                        continue
+                elif text[:4] == "SET " and entry.set_ts is None and (m := _SET.match(text)):
                     entry.count += 1
-                    entry.use = _USE.match(text).group(1).strip("`")
+                    entry.set_ts = m.group(1)
+                    continue
+                elif text[:4] == "use " and entry.set_ts is None and (m := _USE.match(text)):
+                    entry.count += 1
+                    entry.use = m.group(1).strip("`")
                     reader.last_use = entry.use
                     continue
-                elif entry.set_ts is None and text.startswith("SET ") and _SET.match(text):
-                    entry.count += 1
-                    entry.set_ts = _SET.match(text).group(1)
-                    continue
+                elif ", Version: " in text and _BANNER.match(text):
+                    pass
                 else:
                     entry.count += 1
                     entry.sql = [text]
                     continue
-            else:
+            elif not (
+                (text[:2] == "# " and text[2:7] in _START_TAGS and text.startswith(_STARTS))
+                or (", Version: " in text and _BANNER.match(text))
+            ):
                 # Statement text: runs until the next header or banner.
-                if not (
-                    (text.startswith("# ") and text.startswith(_ENTRY_START + _LATE_START))
-                    or (", Version: " in text and _BANNER.match(text))
-                ):
-                    entry.count += 1
-                    entry.sql.append(text)
-                    continue
+                entry.count += 1
+                entry.sql.append(text)
+                continue
             yield from reader.finish(entry, at_eof=False)
             entry = None
         # Between entries.
-        if text.startswith("# ") and text.startswith(_ENTRY_START + _LATE_START):
+        if text[:2] == "# " and text.startswith(_STARTS):
             entry = _Entry(number)
             entry.count = 1
             reader.header(entry, text)
