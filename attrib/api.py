@@ -7,7 +7,7 @@ Every CLI command calls one method here; the logic lives in the stage modules
 from __future__ import annotations
 
 import os
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import duckdb
 
@@ -16,9 +16,9 @@ from attrib import store as _store
 if TYPE_CHECKING:  # analysis modules are imported when first used
     from collections.abc import Iterable
     from datetime import datetime
-    from typing import Any
 
     import pandas as pd
+    from matplotlib.figure import Figure
 
     from attrib.attribute import RouteDetail
     from attrib.coverage import Coverage
@@ -53,6 +53,18 @@ class Store:
         self.close()
 
     # Analyses are added below, one method per CLI command.
+
+    def chart(self, kind: str, **options: Any) -> Figure:
+        """Draw one chart kind (see :data:`attrib.charts.KINDS`); see :func:`attrib.charts.draw`."""
+        from attrib import charts
+
+        return charts.draw(self, kind, **options)
+
+    def report_html(self, *, top: int = 20, progress: Any = None, **sections: Any) -> str:
+        """The self-contained HTML report as a string; see :mod:`attrib.report`."""
+        from attrib import report
+
+        return report.render_html(report.collect(self, top=top, progress=progress, **sections))
 
     def ingest(
         self,

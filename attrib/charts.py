@@ -10,6 +10,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from datetime import datetime
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import duckdb
 import matplotlib
@@ -23,6 +24,9 @@ from matplotlib.figure import Figure  # noqa: E402
 
 from attrib.errors import AttribError  # noqa: E402
 
+if TYPE_CHECKING:
+    from attrib.api import Store
+
 # Okabe & Ito (2008), "Color Universal Design": eight colours told apart by viewers with the common
 # forms of colour-vision deficiency. Order chosen so that neighbours differ in lightness too.
 PALETTE = ("#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00", "#F0E442", "#000000")
@@ -30,7 +34,7 @@ _INK = "#22303c"
 _GRID = "#d9dee3"
 _PAPER = "#fbfaf7"
 
-KINDS = ("fraction", "histogram", "timeline", "heatmap", "nplus1", "compare", "whatif")
+KINDS = ("fraction", "histogram", "timeline", "heatmap", "nplus1")
 HEXBIN_ABOVE = 4000
 
 
@@ -533,6 +537,56 @@ def ecdf_pair(
     _title(fig, ax, title)
     fig.tight_layout()
     return fig
+
+
+def draw(
+    store: Store,
+    kind: str,
+    *,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    route: str | None = None,
+    top: int = 5,
+    by_route: bool = False,
+    interval: str = "1 minute",
+    markers: Sequence[tuple[datetime, str]] = (),
+    child: str | None = None,
+    width: int | None = None,
+    height: int | None = None,
+    **_unused: Any,
+) -> Figure:
+    """Draw chart ``kind`` (one of :data:`KINDS`) for a store; the options each kind uses are named
+    after the functions above. ``nplus1`` draws the top finding, or the one whose repeated template
+    is ``child``."""
+    con = store.con
+    size = {k: v for k, v in (("width", width), ("height", height)) if v}
+    window = {"since": since, "until": until}
+    if kind == "fraction":
+        return db_fraction(con, top=top, route=route, **window, **size)
+    if kind == "histogram":
+        return elapsed_histogram(con, by_route=by_route, top=top, route=route, **window, **size)
+    if kind == "timeline":
+        return timeline(con, interval=interval, markers=markers, route=route, **window, **size)
+    if kind == "heatmap":
+        return template_heatmap(con, routes=max(top, 12), templates=max(top, 12), **window, **size)
+    if kind == "nplus1":
+        loops = store.nplus1(route=route, **window)
+        if child is not None:
+            loops = loops[loops["child_template_id"].str.startswith(child)]
+        loops = loops[loops["parent_template_id"].notna()]
+        if loops.empty:
+            raise ChartError(
+                "no N+1 finding with a parent template for this selection; nothing to plot"
+            )
+        row = loops.iloc[0]
+        return nplus1_evidence(
+            con,
+            route=row["route"],
+            parent_template_id=row["parent_template_id"],
+            child_template_id=row["child_template_id"],
+            **size,
+        )
+    raise ChartError(f"unknown chart kind {kind!r}; use one of {', '.join(KINDS)}")
 
 
 def save(fig: Figure, path: str | Path, *, dpi: int = 100) -> Path:

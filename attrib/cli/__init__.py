@@ -34,6 +34,8 @@ _COMMANDS["fingerprint"] = "fingerprint:fingerprint_command"
 _COMMANDS["whatif"] = "verify:whatif_cmd"
 _COMMANDS["compare"] = "verify:compare_cmd"
 _COMMANDS["check"] = "verify:check_cmd"
+_COMMANDS["chart"] = "pictures:chart_cmd"
+_COMMANDS["report"] = "pictures:report_cmd"
 _COMMANDS["demo"] = "demo:demo_cmd"
 
 
