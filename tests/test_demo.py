@@ -225,32 +225,35 @@ def test_demo_cli_table_output_has_titles_and_advice(tmp_path: Path) -> None:
 def test_advice_names_redundant_repeat_and_slow_route_outside_database() -> None:
     routes = pd.DataFrame(
         {
-            "route": ["/a", "/slow"],
-            "requests": [100, 10],
-            "db_ms_total": [500.0, 5.0],
-            "db_share": [0.99, 0.01],
-            "db_fraction_p50": [0.6, 0.02],
-            "elapsed_ms_p95": [20.0, 900.0],
+            "route": ["/a", "/slow", "/rare"],
+            "requests": [100, 40, 5],
+            "db_ms_total": [500.0, 5.0, 0.1],
+            "db_share": [0.98, 0.01, 0.01],
+            "db_fraction_p50": [0.6, 0.02, 0.01],
+            "elapsed_ms_p50": [10.0, 500.0, 800.0],
+            "elapsed_ms_p95": [20.0, 900.0, 5000.0],
         }
     )
     nplus1 = pd.DataFrame(
         {
-            "route": ["/a"],
-            "kind": ["redundant"],
-            "child_template_id": ["0123456789abcdef"],
-            "parent_template_id": [None],
-            "requests": [100],
-            "repeats_mean": [5.0],
-            "saving_ms_estimate": [200.0],
+            "route": ["/a", "/a"],
+            "kind": ["redundant", "n_plus_one"],
+            "child_template_id": ["0123456789abcdef", "fedcba9876543210"],
+            "parent_template_id": [None, "0123456789abcdef"],
+            "requests": [100, 100],
+            "repeats_mean": [5.0, 8.0],
+            "saving_ms_estimate": [200.0, 150.0],
         }
     )
     lines = demo.advice(routes, pd.DataFrame(), nplus1)
+    assert len(lines) == 3  # one finding per route; the second finding of /a is left to the table
     assert lines[0] == (
         "/a runs template 01234567… 5.0 times per request with the same values (a redundant "
-        "repeat); reusing the first result would save about 2.0 ms per request, 40% of that "
-        "route's database time."
+        "repeat); reusing the first result would save about 2.0 ms per request (median response "
+        "time 10.0 ms)."
     )
-    assert lines[1].startswith("/a has the largest share of database time (99% over 100 requests)")
+    assert lines[1].startswith("/a has the largest share of database time (98% over 100 requests)")
+    # /rare is slower but has too few requests to judge
     assert lines[2].startswith("/slow is slow (p95 900 ms) but spends only 2% of a typical request")
 
 
