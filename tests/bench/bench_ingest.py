@@ -145,6 +145,7 @@ from attrib.ingest import IngestOptions, ingest
 opts = json.loads(sys.argv[1])
 con = _store.connect(opts["store"])
 started = time.perf_counter()
+cpu = time.process_time()
 options = IngestOptions(workers=opts["workers"], chunk_size=opts["chunk"])
 if opts["profile"]:
     import cProfile, pstats
@@ -152,6 +153,7 @@ if opts["profile"]:
     prof.enable()
 result = ingest(con, opts["requests"], opts["queries"], options)
 seconds = time.perf_counter() - started
+cpu = time.process_time() - cpu
 if opts["profile"]:
     prof.disable()
     pstats.Stats(prof, stream=sys.stderr).sort_stats("cumulative").print_stats(35)
@@ -159,8 +161,10 @@ if opts["profile"]:
 con.close()
 import resource
 rss_self = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-rss_workers = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
-print(json.dumps({"seconds": seconds, "files": [f.__dict__ for f in result.files],
+children = resource.getrusage(resource.RUSAGE_CHILDREN)
+rss_workers = children.ru_maxrss / 1024
+print(json.dumps({"seconds": seconds, "cpu": cpu,
+                  "worker_cpu": children.ru_utime + children.ru_stime, "files": [f.__dict__ for f in result.files],
                   "links": result.links_added, "rss_mib": rss_self, "worker_rss_mib": rss_workers}))
 """
 
