@@ -103,11 +103,19 @@ def time_parser(tz: ZoneInfo | None) -> Callable[[str], int]:
     >>> time_parser(None)("2024-03-05 14:02:11.481 CET")
     1709643731481000
     """
-    last_key: tuple[str, str] | None = None
+    last_key: str | None = None
     last_value = 0
 
     def parse(text: str) -> int:
         nonlocal last_key, last_value
+        if text[19:20] == "." and text[23:24] == " " and text[20:23].isdigit():
+            # the common %m shape "YYYY-MM-DD HH:MM:SS.mmm ZONE"
+            micros = int(text[20:23]) * 1000
+            key = text[:19] + text[23:]
+            if key != last_key:
+                last_value = _epoch_seconds(text[:19], text[24:], tz)
+                last_key = key
+            return last_value * 1_000_000 + micros
         base = text[:19]
         rest = text[19:]
         micros = 0
@@ -123,7 +131,7 @@ def time_parser(tz: ZoneInfo | None) -> Callable[[str], int]:
             zone = rest[1:]
         elif rest:
             raise ValueError(f"bad timestamp {text!r}")
-        key = (base, zone)
+        key = base + " " + zone
         if key != last_key:
             last_value = _epoch_seconds(base, zone, tz)
             last_key = key

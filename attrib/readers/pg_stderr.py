@@ -109,7 +109,8 @@ def compile_prefix(prefix: str) -> re.Pattern[str]:
         tail.append(rest)
         body = "".join(head) + "(?:" + "".join(tail) + ")?"
     severity = "|".join(sorted(SEVERITIES, key=len, reverse=True))
-    return re.compile(f"{body}(?P<severity>{severity}):  (?P<message>.*)\\Z", re.S)
+    never = "(?P<none>(?!))?"  # an always-empty group for escapes a prefix does not have
+    return re.compile(f"{never}{body}(?P<severity>{severity}):  (?P<message>.*)\\Z", re.S)
 
 
 def sniff(head: list[str]) -> bool:
@@ -141,7 +142,11 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
     parse_time = time_parser(options.tz) if "time" in groups else epoch_parser
     time_group = "time" if "time" in groups else "epoch"
     key_group = "session" if "session" in groups else ("pid" if "pid" in groups else None)
-    has = {name: name in groups for name in ("user", "database", "sqlstate", "application")}
+    # one group() call per line; letters the prefix lacks read the always-empty group "none"
+    names = tuple(
+        name if name in groups else "none"
+        for name in (time_group, key_group or "none", "user", "database", "application")
+    ) + ("severity", "sqlstate" if "sqlstate" in groups else "none", "message")
 
     asm = Assembler()
     held: Entry | None = None  # primary message waiting for its DETAIL/STATEMENT lines
@@ -190,30 +195,29 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
             reason = "empty line" if not text.strip() else "line does not match log_line_prefix"
             yield from asm.reject(number, reason, text)
             continue
+        stamp, key, user, database, application, severity, sqlstate, message = match.group(*names)
         try:
-            time_us = parse_time(match.group(time_group))
+            time_us = parse_time(stamp)
         except ValueError:
             if held is not None:
                 yield from asm.feed(held)
                 held = None
             yield from asm.reject(number, "unreadable timestamp", text)
             continue
-        key = match.group(key_group) if key_group else ""
-        application = match.group("application") if has["application"] else None
         current = Entry(
-            line=number,
-            lines=1,
-            time_us=time_us,
-            session=key,
-            label=key or None,
-            user=clean_name(match.group("user")) if has["user"] else None,
-            database=clean_name(match.group("database")) if has["database"] else None,
-            request_id=clean_name(application) if app_as_request else None,
-            severity=match.group("severity"),
-            sqlstate=match.group("sqlstate") if has["sqlstate"] else None,
-            message="",
+            number,
+            1,
+            time_us,
+            key or "",
+            key or None,
+            clean_name(user),
+            clean_name(database),
+            clean_name(application) if app_as_request else None,
+            severity,
+            sqlstate,
+            "",
         )
-        parts = [match.group("message")]
+        parts = [message]
     if current is not None:
         yield from complete(current)
     if held is not None:
