@@ -80,46 +80,27 @@ def sniff(head: list[str]) -> bool:
 
 
 class _Entry:
-    """Header fields and text lines of one entry being read."""
+    """Header fields and text lines of one entry being read (class attributes are the defaults)."""
 
-    __slots__ = (
-        "first",
-        "count",
-        "time",
-        "has_time",
-        "user",
-        "session",
-        "schema",
-        "use",
-        "query_time",
-        "rows_sent",
-        "rows_affected",
-        "errno",
-        "killed",
-        "start_extra",
-        "set_ts",
-        "sql",
-        "bad",
-    )
+    count = 0
+    time: tuple[str, datetime] | None = None
+    has_time = False
+    user: str | None = None
+    session: str | None = None
+    schema: str | None = None
+    use: str | None = None
+    query_time: float | None = None
+    rows_sent: int | None = None
+    rows_affected: int | None = None
+    errno: int | None = None
+    killed: int | None = None
+    start_extra: str | None = None
+    set_ts: str | None = None
+    sql: list[str] | None = None
+    bad: str | None = None
 
     def __init__(self, first: int) -> None:
         self.first = first
-        self.count = 0
-        self.time: tuple[str, datetime] | None = None
-        self.has_time = False
-        self.user: str | None = None
-        self.session: str | None = None
-        self.schema: str | None = None
-        self.use: str | None = None
-        self.query_time: float | None = None
-        self.rows_sent: int | None = None
-        self.rows_affected: int | None = None
-        self.errno: int | None = None
-        self.killed: int | None = None
-        self.start_extra: str | None = None
-        self.set_ts: str | None = None
-        self.sql: list[str] | None = None
-        self.bad: str | None = None
 
 
 class _Reader:
@@ -130,6 +111,7 @@ class _Reader:
         self.last_time: tuple[str, datetime] | None = None
         self.last_use: str | None = None
         self._time_cache: dict[str, tuple[str, datetime] | None] = {}
+        self._user_cache: dict[str, tuple[str | None, str | None]] = {}
 
     def parse_time(self, value: str) -> tuple[str, datetime] | None:
         """``(kind, datetime)`` of a ``# Time:`` value, or None when unreadable.
@@ -204,11 +186,19 @@ class _Reader:
                 parts = text.split()
                 entry.rows_affected = _int(parts[2]) if len(parts) > 2 else None
         elif tag == "User@":
-            match = _USER_HOST.match(text)
-            if match:
-                entry.user = (match.group(2) or match.group(1)).strip() or None
-                if match.group(5):
-                    entry.session = match.group(5)
+            # The same few user/host lines repeat all through a log: parse each distinct one once.
+            known = self._user_cache.get(text)
+            if known is None:
+                match = _USER_HOST.match(text)
+                known = (None, None)
+                if match:
+                    known = ((match.group(2) or match.group(1)).strip() or None, match.group(5))
+                if len(self._user_cache) > 4096:
+                    self._user_cache.clear()
+                self._user_cache[text] = known
+            entry.user = known[0]
+            if known[1]:
+                entry.session = known[1]
         elif tag == "Time:":
             parsed = self.parse_time(text[7:].strip())
             if parsed is None:
@@ -238,7 +228,7 @@ class _Reader:
             return self.to_us(*when, entry.first)
         return self.to_us(*when, entry.first) - duration_us
 
-    def finish(self, entry: _Entry, at_eof: bool) -> Iterator[Record]:
+    def finish(self, entry: _Entry, at_eof: bool) -> list[Record]:
         """The record(s) of a complete entry."""
         sql_lines = entry.sql or []
         end = len(sql_lines) - 1
@@ -251,28 +241,36 @@ class _Reader:
                 reason = "statement cut off at end of file (no final ';')"
             else:
                 reason = "statement not terminated by ';'"
-            yield Reject(entry.first, reason if entry.bad is None else entry.bad, "", entry.count)
-            return
+            return [
+                Reject(entry.first, reason if entry.bad is None else entry.bad, "", entry.count)
+            ]
         trailing = len(sql_lines) - 1 - end
         own = entry.count - trailing
         if sql_lines[0].startswith(_ADMIN):
-            yield Skip(entry.first, "admin-command", own)
+            record: Record = Skip(entry.first, "admin-command", own)
         elif entry.bad is not None:
-            yield Reject(entry.first, entry.bad, "", own)
+            record = Reject(entry.first, entry.bad, "", own)
         elif entry.query_time is None:
-            yield Reject(entry.first, "entry without a '# Query_time:' line", "", own)
+            record = Reject(entry.first, "entry without a '# Query_time:' line", "", own)
         else:
-            yield self.statement(entry, sql_lines[: end + 1], own)
-        if trailing:
-            yield Reject(
-                entry.first + own, "text after the end of a statement", sql_lines[end + 1], trailing
-            )
+            record = self.statement(entry, sql_lines if not trailing else sql_lines[: end + 1], own)
+        if not trailing:
+            return [record]
+        return [
+            record,
+            Reject(
+                entry.first + own,
+                "text after the end of a statement",
+                sql_lines[end + 1][:200],
+                trailing,
+            ),
+        ]
 
     def statement(self, entry: _Entry, sql_lines: list[str], own: int) -> Record:
         start = self.start_us(entry)
         if start is None:
             return Reject(entry.first, "entry has no time ('# Time:' or 'SET timestamp=')", "", own)
-        sql = "\n".join(sql_lines).rstrip()
+        sql = ("\n".join(sql_lines) if len(sql_lines) > 1 else sql_lines[0]).rstrip()
         sql = sql[:-1]  # the server appends ';' to every statement (MySQL manual, log.cc)
         rows = entry.rows_sent
         if entry.rows_affected is not None and entry.rows_affected != rows:
@@ -328,9 +326,9 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
                         entry.count += 1
                         entry.sql = [text]
                         continue
-                elif text[:4] == "SET " and entry.set_ts is None and (m := _SET.match(text)):
+                elif text[:4] == "SET " and entry.set_ts is None and (ts := _set_timestamp(text)):
                     entry.count += 1
-                    entry.set_ts = m.group(1)
+                    entry.set_ts = ts
                     continue
                 elif text[:4] == "use " and entry.set_ts is None and (m := _USE.match(text)):
                     entry.count += 1
@@ -369,6 +367,14 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
             yield Reject(number, "not part of a slow-log entry", text[:200])
     if entry is not None:
         yield from reader.finish(entry, at_eof=True)
+
+
+def _set_timestamp(text: str) -> str | None:
+    """The epoch of a server ``SET [last_insert_id=N,][insert_id=N,]timestamp=N;`` line, else None."""
+    if text.startswith("SET timestamp=") and text.endswith(";") and text[14:-1].isdigit():
+        return text[14:-1]  # the usual line, without a regex
+    match = _SET.match(text)
+    return match.group(1) if match else None
 
 
 def _int(value: str | None) -> int | None:
