@@ -157,6 +157,7 @@ def test_read_mysql8_entries_use_time_minus_duration_and_log_slow_extra() -> Non
 
 
 def test_read_mysql57_admin_command_is_skipped_and_set_ids_are_read() -> None:
+    # Shape from our log-formats reference §2 (MySQL sql/log.cc): "# administrator command: Quit;".
     records, _n = _fixture("005_mysql57_admin_command.log", tz=None)
     assert [(type(r).__name__, r.line, r.lines) for r in records] == [
         ("Statement", 1, 6),
@@ -288,3 +289,20 @@ def test_read_header_only_entry_followed_by_next_entry_is_rejected() -> None:
     reject, stmt = _read(lines)
     assert (reject.line, reject.lines, reject.reason) == (1, 2, "entry ends before its statement")
     assert (stmt.line, stmt.lines, stmt.sql) == (3, 5, "SELECT 1")
+
+
+@pytest.mark.parametrize(
+    ("ci", "outcome"), [(None, pytest.skip.Exception), ("true", pytest.fail.Exception)]
+)
+def test_mariadb_server_without_binaries_skips_outside_ci_and_fails_in_ci(
+    monkeypatch: pytest.MonkeyPatch, ci: str | None, outcome: type[BaseException]
+) -> None:
+    from tests import mariadbserver
+
+    monkeypatch.setattr(mariadbserver, "_binary", lambda *names: None)
+    if ci is None:
+        monkeypatch.delenv("CI", raising=False)
+    else:
+        monkeypatch.setenv("CI", ci)
+    with pytest.raises(outcome, match="mariadbd"), mariadbserver.mariadb_server():
+        pass  # pragma: no cover - never reached
