@@ -553,3 +553,20 @@ def test_read_stderr_returns_utc_times_for_the_fixture_start():
         first.start_us
         == int(datetime(2026, 12, 1, 23, 11, 43, 214000, UTC).timestamp() * 1e6) - 15899
     )
+
+
+# -- the throwaway server helper ---------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(("ci", "outcome"), [("true", "failed"), ("", "skipped")])
+def test_require_postgres_without_binaries_fails_on_ci_and_skips_elsewhere(
+    monkeypatch, tmp_path, ci, outcome
+):
+    from tests import pgserver
+
+    monkeypatch.setattr(pgserver, "BIN_DIR", tmp_path)
+    monkeypatch.setenv("CI", ci)
+    with pytest.raises(BaseException) as caught:
+        pgserver.require_postgres()
+    assert type(caught.value).__name__ == {"failed": "Failed", "skipped": "Skipped"}[outcome]
+    assert str(tmp_path) in str(caught.value)
