@@ -92,6 +92,7 @@ def normalize_words(shape: str, kw: frozenset[str], folds_case: bool) -> list[st
     return out
 
 
+_WORD_VALUES = frozenset(("NULL", "TRUE", "FALSE"))
 _UNARY_BEFORE = frozenset(
     "= < > <= >= <> != ( , [ + - * / % || AND OR NOT WHEN THEN ELSE SELECT".split()
 )
@@ -109,6 +110,8 @@ def fallback_template(shape: str, kw: frozenset[str], folds_case: bool) -> str:
     toks = normalize_words(shape, kw, folds_case)
     out: list[str] = []
     for tok in toks:
+        if tok in _WORD_VALUES and not (out and out[-1] in ("IS", "NOT")):
+            tok = "'?'"  # TRUE/FALSE/NULL as values; after IS [NOT] or NOT they are tests
         if tok == "'?'":
             # A sign in front of a masked value is part of the value: "= -5" and "= 5" match.
             if out and out[-1] == "-" and (len(out) == 1 or out[-2] in _UNARY_BEFORE):

@@ -24,7 +24,6 @@ pattern used only for statements that contain those words.
 from __future__ import annotations
 
 import re
-from collections.abc import Callable
 from dataclasses import dataclass
 
 MASK = "'?'"
@@ -42,14 +41,6 @@ _LIST_END = (
 )
 
 
-def _word_value(word: str) -> str:
-    """TRUE/FALSE/NULL as a value, not inside a name and not after IS [NOT] / NOT (predicates)."""
-    first, rest = word[0], word[1:]
-    letters = "".join(f"[{c.upper()}{c.lower()}]" for c in rest)
-    cls = f"[{first.upper()}{first.lower()}]"
-    return rf"(?<![\w$.\"`]{cls})(?<![Ii][Ss]\s{cls})(?<![Nn][Oo][Tt]\s{cls}){letters}(?![\w$])"
-
-
 # Rules shared by every dialect, as (action, first character class, rest of the pattern).
 _NUMBERS = [
     (LITERAL, r"\d", rf"(?<![\w$.]\d)(?:(?<=0)[xX][0-9A-Fa-f_]+|(?<=0)[bBoO][0-7_]+|{_NUM_TAIL})"),
@@ -62,17 +53,20 @@ _COMMON_PARAMS = [
     (PARAM, ":", r"(?<![:\w]:)[A-Za-z_]\w*"),
 ]
 _BLOCK_COMMENT = [(DROP, "/", r"\*.*?\*/"), (DROP_OPEN, "/", r"\*.*")]
-_WORDS = [
-    (LITERAL, "[Nn]", _word_value("null")),
-    (LITERAL, "[Tt]", _word_value("true")),
-    (LITERAL, "[Ff]", _word_value("false")),
-    # ORDER BY / GROUP BY lists: integers there are column positions, not values, and stay.
-    (
-        KEEP,
-        "[Bb]",
-        rf"(?<![\w$][Bb])[Yy]\s+(?:{_SIMPLE_ITEM}{_ITEM_TAIL}\s*,\s*)*{_SIMPLE_ITEM}{_ITEM_TAIL}{_LIST_END}",
-    ),
-]
+# TRUE/FALSE/NULL stay in shapes as words (letters would slow the scan down); normalize.py and
+# fallback.py mask them where they are values. Literal lists find them in the masked text, in
+# order with the masks: TRUE/FALSE/NULL after IS [NOT] or NOT are predicates, not values.
+_IN_ORDER = re.compile(
+    r"'\?'|(?<![\w$.\"`])(?<![Ii][Ss]\s)(?<![Nn][Oo][Tt]\s)(?i:NULL|TRUE|FALSE)(?![\w$])"
+)
+
+# ORDER BY / GROUP BY lists: integers there are column positions, not values, and stay. Found at
+# the "Y" of BY, a letter rare enough in SQL to keep this rule in the fast pattern.
+_POSITIONS = (
+    KEEP,
+    "[Yy]",
+    rf"(?<![\w$][Bb][Yy])(?<=[Bb][Yy])\s+(?:{_SIMPLE_ITEM}{_ITEM_TAIL}\s*,\s*)*{_SIMPLE_ITEM}{_ITEM_TAIL}{_LIST_END}",
+)
 
 _SQ_STANDARD = [(LITERAL, "'", r"[^']*(?:''[^']*)*'"), (LITERAL_OPEN, "'", r".*")]
 _SQ_BACKSLASH = [
@@ -152,33 +146,39 @@ def _generic_rules() -> list[tuple[int, str, str]]:
 
 @dataclass(frozen=True)
 class Lexer:
-    """One dialect's combined patterns and the action of each capturing group."""
+    """One dialect's combined pattern and the action of each capturing group."""
 
     name: str
-    fast: re.Pattern[str]  # without the letter-led rules
-    full: re.Pattern[str]  # with TRUE/FALSE/NULL and ORDER BY positions
-    fast_actions: tuple[int, ...]
-    full_actions: tuple[int, ...]
+    pattern: re.Pattern[str]
+    actions: tuple[int, ...]
     folds_case: bool  # unquoted identifiers are case-insensitive: the shape may be upper-cased
 
 
+def _chars(first: str) -> list[str]:
+    """The characters of a first-character class such as ``'``, ``\\d``, ``[Nn]``, ``\\$``."""
+    if first == r"\d":
+        return list("0123456789")
+    if first.startswith("["):
+        return list(first[1:-1])
+    return [first[-1]]
+
+
 def _combine(rules: list[tuple[int, str, str]]) -> tuple[re.Pattern[str], tuple[int, ...]]:
-    firsts = "".join(dict.fromkeys(c[1:-1] if c.startswith("[") else c for _, c, _ in rules))
-    firsts = firsts.replace("-", "") + "\\-"  # a bare "-" inside [...] would make a range
+    # Every top-level alternative starts with one literal character, so sre both skips to the
+    # next possible first character in C and rejects the other alternatives by that character.
     branches = []
     actions = [DROP]  # group 0 is never a lastindex
     for action, first, rest in rules:
-        branches.append(f"(?<={first})({rest})")
-        # Inner groups shift the numbering; the outer group of a branch is its lastindex.
-        actions += [action] + [KEEP] * re.compile(rest).groups
-    pattern = f"[{firsts}](?:{'|'.join(branches)})"
-    return re.compile(pattern, re.DOTALL), tuple(actions)
+        for ch in _chars(first):
+            branches.append(f"{re.escape(ch)}({rest})")
+            # Inner groups shift the numbering; the outer group of a rule is its lastindex.
+            actions += [action] + [KEEP] * re.compile(rest).groups
+    return re.compile("|".join(branches), re.DOTALL), tuple(actions)
 
 
 def _lexer(name: str, rules: list[tuple[int, str, str]], folds_case: bool) -> Lexer:
-    fast, fast_actions = _combine(rules)
-    full, full_actions = _combine(rules + _WORDS)
-    return Lexer(name, fast, full, fast_actions, full_actions, folds_case)
+    pattern, actions = _combine(rules + [_POSITIONS])
+    return Lexer(name, pattern, actions, folds_case)
 
 
 LEXERS: dict[str, Lexer] = {
@@ -190,13 +190,13 @@ LEXERS: dict[str, Lexer] = {
     "generic": _lexer("generic", _generic_rules(), True),
 }
 
-_IN_LIST = re.compile(r"(?i:\bIN)\s*\(\s*'\?'(?:\s*,\s*'\?')+\s*\)")
-_VALUES_ROWS = re.compile(r"((?i:\bVALUES)\s*(\((?:[^()]|\([^()]*\))*\)))(?:\s*,\s*\2)+")
+_IN_LIST = re.compile(r"\('\?'(?:,\s?'\?')+\)")
+_VALUES_ROWS = re.compile(r"((?i:VALUES)\s*(\((?:[^()]|\([^()]*\))*\)))(?:\s*,\s*\2)+")
 _SAVEPOINT = re.compile(
     r"\A((?i:SAVEPOINT|RELEASE(?:\s+SAVEPOINT)?|ROLLBACK(?:\s+(?:WORK|TRANSACTION))?\s+TO"
     r"(?:\s+SAVEPOINT)?))\s+(?:[A-Za-z_][\w$]*|\"(?:[^\"]|\"\")*\"|`(?:[^`]|``)*`)\Z"
 )
-_WORD_HINTS = ("null", "true", "false", "by")
+_E_PREFIX = re.compile(r"(?<![\w$])[Ee]'\?'")
 
 
 class Masker:
@@ -208,46 +208,59 @@ class Masker:
 
     def __init__(self, lexer: Lexer, keep_literals: bool) -> None:
         self.lexer = lexer
+        self.keep_literals = keep_literals
         self.literals: list[str] = []
         self.open = False
-        fast_actions, full_actions = lexer.fast_actions, lexer.full_actions
-        append = self.literals.append
+        actions = lexer.actions
+        found: list[str | None] = []
+        self._found = found
+        append = found.append
 
-        def make(actions: tuple[int, ...]) -> Callable[[re.Match[str]], str]:
-            def replace(m: re.Match[str]) -> str:
-                action = actions[m.lastindex]  # type: ignore[index]
-                if action == LITERAL:
-                    if keep_literals:
-                        token = m.group()
-                        append("-" + token[1:].strip() if token[0] == "-" else token)
-                    return MASK
-                if action == PARAM:
-                    return MASK
-                if action == DROP:
-                    return " "
-                if action == KEEP:
-                    return m.group()
-                self.open = True
-                if action == LITERAL_OPEN:
-                    if keep_literals:
-                        append(m.group())
-                    return MASK
+        def replace(m: re.Match[str]) -> str:
+            action = actions[m.lastindex]  # type: ignore[index]
+            if action == LITERAL:
+                if keep_literals:
+                    token = m.group()
+                    append("-" + token[1:].strip() if token[0] == "-" else token)
+                return MASK
+            if action == PARAM:
+                if keep_literals:
+                    append(None)  # a mask that carries no value
+                return MASK
+            if action == DROP:
                 return " "
+            if action == KEEP:
+                return m.group()
+            self.open = True
+            if action == LITERAL_OPEN:
+                if keep_literals:
+                    append(m.group())
+                return MASK
+            return " "
 
-            return replace
-
-        self._fast_sub = lexer.fast.sub
-        self._full_sub = lexer.full.sub
-        self._fast_repl = make(fast_actions)
-        self._full_repl = make(full_actions)
+        self._sub = lexer.pattern.sub
+        self._replace = replace
 
     def mask(self, sql: str) -> str:
         """Literals to ``'?'`` and comments to a space; nothing else is changed."""
         self.open = False
-        low = sql.lower()
-        if "null" in low or "true" in low or "false" in low or "by" in low:
-            return self._full_sub(self._full_repl, sql)
-        return self._fast_sub(self._fast_repl, sql)
+        if not self.keep_literals:
+            return self._sub(self._replace, sql)
+        found = self._found
+        found.clear()
+        masked = self._sub(self._replace, sql)
+        literals = self.literals
+        literals.clear()
+        low = masked.lower()
+        if "null" in low or "true" in low or "false" in low:
+            tokens = iter(found)
+            for m in _IN_ORDER.finditer(masked):
+                token = next(tokens, None) if m.group() == MASK else m.group()
+                if token is not None:
+                    literals.append(token)
+        else:
+            literals.extend(t for t in found if t is not None)
+        return masked
 
     def shape(self, sql: str) -> str:
         """The statement's shape (see the module docstring).
@@ -258,9 +271,16 @@ class Masker:
         return finish(self.mask(sql), self.lexer.folds_case)
 
 
+def _in_list(m: re.Match[str]) -> str:
+    before = m.string[max(0, m.start() - 4) : m.start()].rstrip()
+    if before[-2:] in ("IN", "in", "In", "iN") and (len(before) < 3 or not before[-3].isalnum()):
+        return "('?')"
+    return m.group()
+
+
 def finish(masked: str, folds_case: bool) -> str:
     """Collapse whitespace, case, IN lists, repeated VALUES rows and savepoint names of a mask."""
-    if '"' in masked or "`" in masked or "[" in masked:
+    if '"' in masked or "`" in masked or "[" in masked or not masked.isascii():
         masked = masked.strip()  # quoted names keep their inner spaces and case
     else:
         masked = " ".join(masked.split())
@@ -268,11 +288,16 @@ def finish(masked: str, folds_case: bool) -> str:
             masked = masked.upper()
     while masked.endswith(";"):
         masked = masked[:-1].rstrip()
-    if "'?'," in masked or "'?' ," in masked:
-        if "IN" in masked or "in" in masked or "In" in masked or "iN" in masked:
-            masked = _IN_LIST.sub("IN ('?')", masked)
-        if "), (" in masked or "),(" in masked or ") ," in masked:
-            masked = _VALUES_ROWS.sub(r"\1", masked)
+    if "('?'," in masked:
+        masked = _IN_LIST.sub(_in_list, masked)
+    if "), (" in masked or "),(" in masked:
+        at = (masked if folds_case else masked.upper()).find("VALUES")
+        if at >= 0:
+            m = _VALUES_ROWS.match(masked, at)
+            if m is not None:
+                masked = masked[:at] + m.group(1) + masked[m.end() :]
+    if "E'?'" in masked or "e'?'" in masked:
+        masked = _E_PREFIX.sub(MASK, masked)  # E'...' and '...' are both string values
     if masked[:1] in "SsRr":
         m = _SAVEPOINT.match(masked)
         if m is not None:

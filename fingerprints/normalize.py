@@ -58,7 +58,11 @@ def _is_mask(node: exp.Expr) -> bool:
 
 
 def mask_values(tree: exp.Expr, dialect: str) -> exp.Expr:
-    """A sign on a masked value goes (``-5`` and ``5`` are both values)."""
+    """TRUE/FALSE/NULL where a value stands are masked (not after IS: ``x IS NULL`` is a test), and
+    a sign on a masked value goes (``-5`` and ``5`` are both values)."""
+    for node in list(tree.find_all(exp.Null, exp.Boolean)):
+        if not isinstance(node.parent, exp.Is):
+            node.replace(exp.Literal.string("?"))
     for node in list(tree.find_all(exp.Neg)):
         if _is_mask(node.this):
             node.replace(node.this)

@@ -31,8 +31,8 @@ COLUMNS = ["id", "hut_id", "guest_id", "name", "created_at", "status", "price", 
 ROUTES = ["/huts", "/huts/{id}", "/bookings", "/bookings/{id}/pay", "/trails/{id}", "/me"]
 
 
-def _string(rng: random.Random) -> str:
-    kind = rng.randrange(6)
+def _string(rng: random.Random, kind: int | None = None) -> str:
+    kind = rng.randrange(6) if kind is None else kind
     word = "".join(rng.choices(string.ascii_letters + " ", k=rng.randrange(3, 14)))
     if kind == 0:
         return "'" + word.replace("'", "''") + "'"
@@ -47,8 +47,8 @@ def _string(rng: random.Random) -> str:
     return "'2026-0" + str(rng.randrange(1, 10)) + "-1" + str(rng.randrange(10)) + "'"
 
 
-def _number(rng: random.Random) -> str:
-    kind = rng.randrange(5)
+def _number(rng: random.Random, kind: int | None = None) -> str:
+    kind = rng.randrange(5) if kind is None else kind
     if kind == 0:
         return str(rng.randrange(1, 10_000_000))
     if kind == 1:
@@ -60,15 +60,28 @@ def _number(rng: random.Random) -> str:
     return str(rng.randrange(0, 100))
 
 
-def _value(rng: random.Random) -> str:
-    kind = rng.randrange(10)
-    if kind < 4:
-        return _number(rng)
-    if kind < 8:
-        return _string(rng)
-    if kind == 8:
+def _value(rng: random.Random, code: int) -> str:
+    """A value of one kind; each hole of a skeleton keeps its kind, as application code does."""
+    if code < 5:
+        return _number(rng, code)
+    if code < 11:
+        return _string(rng, code - 5)
+    if code == 11:
         return rng.choice(["TRUE", "FALSE"])
-    return "NULL"
+    return rng.choice(["NULL", str(rng.randrange(100))])
+
+
+def _typed_holes(skeleton: str, rng: random.Random) -> str:
+    """Give every value hole a fixed kind: {v} -> {v:K}, {rows:W} -> {rows:W:K1,K2,...}."""
+    while "{v}" in skeleton:
+        skeleton = skeleton.replace("{v}", "{v:" + str(rng.randrange(13)) + "}", 1)
+    start = skeleton.find("{rows:")
+    if start >= 0:
+        end = skeleton.index("}", start)
+        width = int(skeleton[start + 6 : end])
+        kinds = ",".join(str(rng.randrange(13)) for _ in range(width))
+        skeleton = skeleton[:start] + f"{{rows:{width}:{kinds}}}" + skeleton[end + 1 :]
+    return skeleton
 
 
 def _templates(rng: random.Random, count: int) -> list[str]:
@@ -81,7 +94,7 @@ def _templates(rng: random.Random, count: int) -> list[str]:
         where = " AND ".join(f"{c} {rng.choice(['=', '>', '<>', '<='])} {{v}}" for c in cols[:2])
         if kind < 4:
             extra = rng.choice(
-                ["", " ORDER BY created_at DESC LIMIT {v}", " ORDER BY 1", " LIMIT {v}"]
+                ["", " ORDER BY created_at DESC LIMIT {n}", " ORDER BY 1", " LIMIT {n}"]
             )
             out.append(f"SELECT {', '.join(cols)} FROM {table} WHERE {where}{extra}")
         elif kind == 4:
@@ -103,6 +116,7 @@ def _templates(rng: random.Random, count: int) -> list[str]:
                 f"WITH recent AS (SELECT {cols[0]}, count(*) AS n FROM {table} WHERE created_at > {{v}} "
                 f"GROUP BY {cols[0]}) SELECT * FROM recent WHERE n >= {{v}} ORDER BY n DESC"
             )
+    out = [_typed_holes(s, rng) for s in out]
     return out + ["BEGIN", "COMMIT", "ROLLBACK", "SAVEPOINT sp_{sp}", "RELEASE SAVEPOINT sp_{sp}"]
 
 
@@ -117,16 +131,21 @@ def _fill(skeleton: str, rng: random.Random) -> str:
         end = skeleton.index("}", start)
         parts.append(skeleton[pos:start])
         hole = skeleton[start + 1 : end]
-        if hole == "v":
-            parts.append(_value(rng))
+        if hole.startswith("v:"):
+            parts.append(_value(rng, int(hole[2:])))
+        elif hole == "n":
+            parts.append(str(rng.randrange(1, 200)))
         elif hole == "in":
             parts.append(", ".join(_number(rng) for _ in range(rng.randrange(1, 30))))
         elif hole == "sp":
             parts.append(str(rng.randrange(1_000_000)))
         else:
-            width = int(hole.split(":")[1])
-            rows = ["(" + ", ".join(_value(rng) for _ in range(width)) + ")"]
-            parts.append(", ".join(rows * rng.randrange(1, 6)) if rng.random() < 0.5 else rows[0])
+            kinds = [int(k) for k in hole.split(":")[2].split(",")]
+            rows = [
+                "(" + ", ".join(_value(rng, k) for k in kinds) + ")"
+                for _ in range(rng.choice([1, 1, 2, 3, 5, 10]))
+            ]
+            parts.append(", ".join(rows))
         pos = end + 1
     return "".join(parts)
 
