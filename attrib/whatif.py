@@ -395,7 +395,7 @@ def _per_request_sql(where: str) -> str:
         FROM tot LEFT JOIN sav USING (rs, rl, rq)
     )
     SELECT route, rs, rl, rq, hash(rs, rl, rq) AS h, affected, queries, queries - dropped AS queries_after,
-           epoch_us(started_at) AS start_us, elapsed_ms, db_ms, db_ms - db_saved AS db_ms_after,
+           epoch_us(started_at) - min(epoch_us(started_at)) OVER () AS start_us, elapsed_ms, db_ms, db_ms - db_saved AS db_ms_after,
            greatest(elapsed_ms - db_saved - gap_saved,
                     greatest(elapsed_ms - db_ms, 0) - gap_saved) AS elapsed_after,
            target_ms + gap_saved AS portion_before, target_ms - db_saved AS portion_after

@@ -321,3 +321,44 @@ def test_whatif_same_seed_gives_same_intervals(con):
     assert not a["elapsed_p50_after_ci_low"].equals(c["elapsed_p50_after_ci_low"])
     r = _row(a, "/huts/{id}/bunks")
     assert r["elapsed_p50_after_ci_low"] <= r["elapsed_p50_after"] <= r["elapsed_p50_after_ci_high"]
+
+
+def _sweep_mean_in_progress(starts, ends, t0, t1) -> float:
+    """Time-average number of intervals in progress over [t0, t1], by sweeping the end points."""
+    events = sorted([(s, 1) for s in starts] + [(e, -1) for e in ends])
+    area, level, last = 0.0, 0, t0
+    for t, step in events:
+        area += level * (t - last)
+        level, last = level + step, t
+    return area / (t1 - t0)
+
+
+def test_whatif_busy_connections_equal_sweep_over_the_stored_statements(con):
+    # Little's law against the log itself: overlapping requests with overlapping statements; the
+    # statements' intervals are read back from the store and swept over the observed span.
+    rng = np.random.default_rng(12)
+    reqs = []
+    for _ in range(60):
+        elapsed = float(rng.uniform(50, 200))
+        n = int(rng.integers(1, 6))
+        stmts = [
+            ("q", float(o), float(rng.uniform(1, 30)), 1, int(k))
+            for k, o in enumerate(np.sort(rng.uniform(0, elapsed - 31, n)))
+        ]
+        start = T0 + timedelta(milliseconds=float(rng.uniform(0, 5000)))
+        reqs.append({"route": "/r", "start": start, "elapsed": elapsed, "statements": stmts})
+    fill_store(con, reqs)
+    row = _row(whatif(con, Scenario(faster={"q": 2.0}), resamples=10), ALL_ROUTES)
+    # Times in ms relative to the first request start (integers in SQL, so no precision is lost).
+    t0 = "(SELECT min(epoch_us(started_at)) FROM requests)"
+    s = con.execute(
+        f"SELECT (epoch_us(started_at) - {t0}) / 1000.0 AS start, duration_ms FROM statements"
+    ).fetchnumpy()
+    end = con.execute(
+        f"SELECT max((epoch_us(started_at) - {t0}) / 1000.0 + elapsed_ms) FROM requests"
+    ).fetchone()[0]
+    starts, durations = np.asarray(s["start"], float), np.asarray(s["duration_ms"], float)
+    expected = _sweep_mean_in_progress(starts, starts + durations, 0.0, end)
+    assert row["busy_connections_before"] == pytest.approx(expected, rel=1e-9)
+    # Twice as fast: every interval halves, so does the time-average.
+    assert row["busy_connections_after"] == pytest.approx(expected / 2, rel=1e-9)
