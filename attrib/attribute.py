@@ -179,21 +179,29 @@ def routes(
     """
     where, params = request_filter("r", since=since, until=until, route=route)
     swhere, sparams = time_filter("s", since=since, until=until)
+    # Statements are grouped per (request, template) first: the number of groups in a request is its
+    # count of distinct templates, without a DISTINCT aggregate over millions of rows.
     sql = f"""
-    WITH req AS (
-        SELECT r.source_id, r.line, r.seq, r.route, r.elapsed_ms FROM requests r WHERE {where}
+    WITH per_tpl AS (
+        SELECT l.req_source_id, l.req_line, l.req_seq,
+               count(*) AS n, coalesce(sum(s.duration_ms), 0) AS ms
+        FROM links l JOIN statements s USING (source_id, line, seq)
+        GROUP BY l.req_source_id, l.req_line, l.req_seq, s.template_id
     ),
     per_req AS (
-        SELECT req.route, any_value(req.elapsed_ms) AS elapsed_ms,
-               count(s.template_id) AS queries,
-               coalesce(sum(s.duration_ms), 0) AS db_ms,
-               count(DISTINCT s.template_id) AS templates
-        FROM req
-        LEFT JOIN links l
-          ON l.req_source_id = req.source_id AND l.req_line = req.line AND l.req_seq = req.seq
-        LEFT JOIN statements s
-          ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
-        GROUP BY req.source_id, req.line, req.seq, req.route
+        SELECT req_source_id, req_line, req_seq,
+               sum(n) AS queries, sum(ms) AS db_ms, count(*) AS templates
+        FROM per_tpl GROUP BY req_source_id, req_line, req_seq
+    ),
+    req AS (
+        SELECT r.route, r.elapsed_ms,
+               coalesce(p.queries, 0) AS queries,
+               coalesce(p.db_ms, 0) AS db_ms,
+               coalesce(p.templates, 0) AS templates
+        FROM requests r
+        LEFT JOIN per_req p
+          ON p.req_source_id = r.source_id AND p.req_line = r.line AND p.req_seq = r.seq
+        WHERE {where}
     ),
     total AS (SELECT sum(s.duration_ms) AS ms FROM statements s WHERE {swhere})
     SELECT route,
@@ -213,7 +221,7 @@ def routes(
            quantile_cont(elapsed_ms, 0.99) AS elapsed_ms_p99,
            avg(templates) AS distinct_templates_per_request_mean,
            (sum(queries) - sum(templates)) / nullif(sum(queries), 0) AS repeat_fraction
-    FROM per_req, total
+    FROM req, total
     GROUP BY route
     """
     df = _frame(con, sql, [*params, *sparams], ROUTE_COLUMNS)
@@ -265,7 +273,8 @@ def templates(
                quantile_cont(duration_ms, 0.99) AS p99_ms,
                avg(rows) AS rows_per_call,
                min(started_at) AS first_seen, max(started_at) AS last_seen,
-               count(rs) / nullif(count(DISTINCT (rs, rl, rq)) FILTER (rs IS NOT NULL), 0)
+               -- hash of the request key: exact unless two request keys collide in 64 bits
+               count(rs) / nullif(count(DISTINCT hash(rs, rl, rq)) FILTER (rs IS NOT NULL), 0)
                    AS calls_per_request
         FROM st GROUP BY template_id
     ),
@@ -362,7 +371,7 @@ def route_templates(
     ),
     tpl AS (
         SELECT template_id, count(*) AS calls,
-               count(DISTINCT (req_source_id, req_line, req_seq)) AS requests,
+               count(DISTINCT hash(req_source_id, req_line, req_seq)) AS requests,
                coalesce(sum(duration_ms), 0) AS total_ms,
                avg(duration_ms) AS mean_ms,
                quantile_cont(duration_ms, 0.5) AS p50_ms,

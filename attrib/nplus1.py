@@ -79,13 +79,13 @@ def find(
         where, params = f"{where} AND r.route = ?", [*params, route]
     else:
         where, params = request_filter("r", since=since, until=until, route=route)
-    occ = f"attrib_nplus1_{uuid.uuid4().hex}"
-    con.execute(f"CREATE TEMP TABLE {occ} AS {_occurrences_sql(where)}", [*params, min_repeats])
+    pairs = f"attrib_nplus1_{uuid.uuid4().hex}"
+    con.execute(f"CREATE TEMP TABLE {pairs} AS {_pairs_sql(where)}", [*params, min_repeats])
     try:
-        findings = con.execute(_FINDINGS_SQL.format(occ=occ)).df()
-        edges = con.execute(_EDGES_SQL.format(occ=occ)).df()
+        findings = con.execute(_FINDINGS_SQL.format(pairs=pairs)).df()
+        edges = con.execute(_EDGES_SQL.format(pairs=pairs)).df()
     finally:
-        con.execute(f"DROP TABLE IF EXISTS {occ}")
+        con.execute(f"DROP TABLE IF EXISTS {pairs}")
     if findings.empty:
         return _empty()
     findings = _attach_parents(findings, edges)
@@ -126,8 +126,10 @@ def fixed_costs(
 ) -> dict[str, stats.CostFit]:
     """Fit each template's fixed cost per call on a bounded, deterministic sample of its calls.
 
-    The sample is the ``sample`` calls with the smallest ``hash(source_id, line, seq)`` among those
-    with a known duration, so the same store always gives the same fit.
+    Among a template's calls with a known duration, the sample keeps those whose
+    ``hash(source_id, line, seq)`` is a multiple of a stride (count // sample, at least 1), then the
+    ``sample`` smallest hashes: one scan, no sort of the whole table, and the same store always
+    gives the same fit.
 
     Args:
         con: a store connection.
@@ -143,14 +145,22 @@ def fixed_costs(
     where, params = time_filter("s", since=since, until=until)
     df = con.execute(
         f"""
-        SELECT s.template_id, s.duration_ms, s.rows
-        FROM statements s
-        WHERE s.template_id IN (SELECT unnest(?::VARCHAR[])) AND s.duration_ms IS NOT NULL
-          AND {where}
-        QUALIFY row_number() OVER (
-            PARTITION BY s.template_id ORDER BY hash(s.source_id, s.line, s.seq), s.line) <= ?
+        WITH calls AS (
+            SELECT s.template_id, s.duration_ms, s.rows, hash(s.source_id, s.line, s.seq) AS h
+            FROM statements s
+            WHERE s.template_id IN (SELECT unnest(?::VARCHAR[])) AND s.duration_ms IS NOT NULL
+              AND {where}
+        ),
+        stride AS (
+            SELECT template_id, greatest(1, count(*) // ?)::UBIGINT AS k
+            FROM calls GROUP BY template_id
+        )
+        SELECT c.template_id, c.duration_ms, c.rows
+        FROM calls c JOIN stride USING (template_id)
+        WHERE c.h % stride.k = 0
+        QUALIFY row_number() OVER (PARTITION BY c.template_id ORDER BY c.h) <= ?
         """,
-        [template_ids, *params, sample],
+        [template_ids, *params, sample, sample],
     ).df()
     groups = {t: g for t, g in df.groupby("template_id", sort=False)}
     out = {}
@@ -209,59 +219,58 @@ def pick_parent(graph: nx.DiGraph, child: str, kind: str) -> str | None:
 # --- SQL ----------------------------------------------------------------------------------------
 
 
-def _occurrences_sql(where: str) -> str:
-    """Every call of a candidate (request, template), with its position, gap and predecessor."""
+def _pairs_sql(where: str) -> str:
+    """One row per candidate (request, template): calls, kind, predecessor, wasted time, gaps."""
     return f"""
     WITH req AS (SELECT r.source_id, r.line, r.seq, r.route FROM requests r WHERE {where}),
     st AS (
-        SELECT req.source_id AS rs, req.line AS rl, req.seq AS rq, req.route,
+        SELECT l.req_source_id AS rs, l.req_line AS rl, l.req_seq AS rq,
                s.source_id, s.line, s.seq, s.started_at, s.duration_ms, s.rows,
                s.template_id, s.param_hash
-        FROM req
-        JOIN links l
+        FROM links l
+        SEMI JOIN req
           ON l.req_source_id = req.source_id AND l.req_line = req.line AND l.req_seq = req.seq
         JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
     ),
-    cand AS (
-        SELECT rs, rl, rq, template_id, count(*) AS n,
-               CASE WHEN count(DISTINCT param_hash)
-                         + (count(*) FILTER (WHERE param_hash IS NULL) > 0)::INTEGER > 1
-                    THEN 'n_plus_one' ELSE 'redundant' END AS kind
-        FROM st GROUP BY rs, rl, rq, template_id
-        HAVING count(*) >= ?
-    ),
     ordered AS (
-        SELECT st.*,
+        SELECT *,
+               row_number() OVER w AS pos,
                lag(template_id) OVER w AS prev_template_id,
                lag(rows) OVER w AS prev_rows
-        FROM st SEMI JOIN (SELECT DISTINCT rs, rl, rq FROM cand) c USING (rs, rl, rq)
+        FROM st
         WINDOW w AS (PARTITION BY rs, rl, rq ORDER BY {_ORDER})
+    ),
+    pairs AS (
+        SELECT rs, rl, rq, template_id,
+               count(*) AS n,
+               -- more than one parameter set among the calls (NULL counts as a value of its own)
+               CASE WHEN min(param_hash) <> max(param_hash)
+                         OR count(param_hash) BETWEEN 1 AND count(*) - 1
+                    THEN 'n_plus_one' ELSE 'redundant' END AS kind,
+               arg_min_null(prev_template_id, pos) AS prev_template_id,
+               arg_min_null(prev_rows, pos) AS prev_rows,
+               coalesce(sum(duration_ms), 0) - coalesce(arg_min_null(duration_ms, pos), 0)
+                   AS wasted_ms,
+               -- sum over consecutive calls of (next start - previous end), telescoped
+               ((epoch_us(max(started_at)) - epoch_us(min(started_at))) / 1000.0
+                   - (coalesce(sum(duration_ms), 0)
+                      - coalesce(arg_max_null(duration_ms, pos), 0)))
+                   / (count(*) - 1) AS gap_ms_mean
+        FROM ordered
+        GROUP BY rs, rl, rq, template_id
+        HAVING count(*) >= ?
     )
-    SELECT o.rs, o.rl, o.rq, o.route, o.template_id, c.kind, c.n, o.duration_ms,
-           o.prev_template_id, o.prev_rows,
-           row_number() OVER v AS k,
-           (epoch_us(o.started_at) - lag(epoch_us(o.started_at)) OVER v) / 1000.0
-               - lag(coalesce(o.duration_ms, 0)) OVER v AS gap_ms
-    FROM ordered o JOIN cand c USING (rs, rl, rq, template_id)
-    WINDOW v AS (PARTITION BY o.rs, o.rl, o.rq, o.template_id ORDER BY {_ORDER})
+    SELECT req.route, pairs.*
+    FROM pairs JOIN req ON req.source_id = pairs.rs AND req.line = pairs.rl AND req.seq = pairs.rq
     """
 
 
 _FINDINGS_SQL = """
-WITH pairs AS (
-    SELECT route, template_id, kind, any_value(n) AS n,
-           coalesce(sum(duration_ms) FILTER (WHERE k > 1), 0) AS wasted_ms
-    FROM {occ} GROUP BY rs, rl, rq, route, template_id, kind
-),
-gaps AS (
-    SELECT route, template_id, kind, quantile_cont(greatest(gap_ms, 0), 0.5) AS gap_ms_median
-    FROM {occ} WHERE k > 1 GROUP BY route, template_id, kind
-)
 SELECT route, template_id AS child_template_id, kind,
        count(*) AS requests, avg(n) AS repeats_mean, max(n) AS repeats_max,
        sum(n - 1) AS extra_calls, sum(wasted_ms) AS wasted_ms_total,
-       any_value(g.gap_ms_median) AS gap_ms_median
-FROM pairs JOIN gaps g USING (route, template_id, kind)
+       quantile_cont(greatest(gap_ms_mean, 0), 0.5) AS gap_ms_median
+FROM {pairs}
 GROUP BY route, template_id, kind
 """
 
@@ -270,7 +279,7 @@ SELECT route, prev_template_id AS parent_template_id, template_id AS child_templ
        count(*) AS requests,
        count(*) FILTER (WHERE prev_rows IS NOT NULL) AS rows_known,
        count(*) FILTER (WHERE prev_rows = n) AS rows_match
-FROM {occ} WHERE k = 1
+FROM {pairs}
 GROUP BY route, prev_template_id, template_id, kind
 """
 
@@ -280,15 +289,21 @@ GROUP BY route, prev_template_id, template_id, kind
 
 def _attach_parents(findings: pd.DataFrame, edges: pd.DataFrame) -> pd.DataFrame:
     graphs = parent_graphs(edges)
-    key = edges.assign(parent=edges["parent_template_id"].fillna(START)).set_index(
-        ["route", "parent", "child_template_id", "kind"]
-    )
+    counts = {
+        (
+            r.route,
+            START if pd.isna(r.parent_template_id) else r.parent_template_id,
+            r.child_template_id,
+            r.kind,
+        ): (r.rows_known, r.rows_match)
+        for r in edges.itertuples(index=False)
+    }
     parents, shares = [], []
     for row in findings.itertuples(index=False):
         parent = pick_parent(graphs[row.route], row.child_template_id, row.kind)
-        e = key.loc[(row.route, parent or START, row.child_template_id, row.kind)]
+        known, match = counts[(row.route, parent or START, row.child_template_id, row.kind)]
         parents.append(parent)
-        shares.append(e["rows_match"] / e["rows_known"] if e["rows_known"] else math.nan)
+        shares.append(match / known if known else math.nan)
     return findings.assign(parent_template_id=parents, parent_rows_match_share=shares)
 
 
