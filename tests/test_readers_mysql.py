@@ -306,3 +306,17 @@ def test_mariadb_server_without_binaries_skips_outside_ci_and_fails_in_ci(
         monkeypatch.setenv("CI", ci)
     with pytest.raises(outcome, match="mariadbd"), mariadbserver.mariadb_server():
         pass  # pragma: no cover - never reached
+
+
+def test_read_set_timestamp_out_of_range_is_rejected() -> None:
+    # A session may set its own clock (SET timestamp=0); the entry then carries that epoch.
+    lines = [
+        "# User@Host: root[root] @  [127.0.0.1]",
+        "# Thread_id: 4  Schema: alpine  QC_hit: No",
+        "# Query_time: 0.000100  Lock_time: 0.000000  Rows_sent: 1  Rows_examined: 1",
+        "SET timestamp=0;",
+        "SELECT NOW();",
+    ]
+    (record,) = _read(lines)
+    assert isinstance(record, Reject) and record.reason == "timestamp out of range"
+    assert record.lines == 5

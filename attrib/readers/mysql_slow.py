@@ -37,6 +37,7 @@ from datetime import UTC, datetime, timedelta
 
 from attrib.errors import TimezoneError
 from attrib.records import ReadOptions, Record, Reject, Skip, Statement
+from attrib.timeparse import MAX_US, MIN_US
 
 NAME = "mysql-slow"
 KIND = "statements"
@@ -270,8 +271,10 @@ class _Reader:
         start = self.start_us(entry)
         if start is None:
             return Reject(entry.first, "entry has no time ('# Time:' or 'SET timestamp=')", "", own)
+        if not MIN_US <= start < MAX_US:  # e.g. a session that ran SET timestamp=0 itself
+            return Reject(entry.first, "timestamp out of range", "", own)
         sql = ("\n".join(sql_lines) if len(sql_lines) > 1 else sql_lines[0]).rstrip()
-        sql = sql[:-1]  # the server appends ';' to every statement (MySQL manual, log.cc)
+        sql = sql[:-1]  # the server appends ';' to every statement (seen on MariaDB; sql/log.cc)
         rows = entry.rows_sent
         if entry.rows_affected is not None and entry.rows_affected != rows:
             word = _FIRST_WORD.match(sql)
