@@ -664,6 +664,10 @@ _CHECKPOINT_EVERY_US = 300 * 1_000_000
 _CHECKPOINTER_PID = 61
 
 
+_MS3 = [f"{i:03d}" for i in range(1000)]
+_STATEMENT = " ms  statement: "
+
+
 class _Sim:
     """State of one generation run; handlers call :meth:`q` to run statements."""
 
@@ -733,48 +737,33 @@ class _Sim:
         d = int(buf.pop() * self.load) + 1
         t = self.t + 60 + (d * 7919) % 200 + d  # app round trip, then the statement
         self.t = t
+        sec = t // 1_000_000
         self.out.append(
             (
                 t,
-                f"{self._sec_pg.get(t // 1_000_000) or self._second(t // 1_000_000)}."
-                f"{t // 1000 % 1000:03d}{self.head}{d // 1000}.{d % 1000:03d} ms  "
-                f"statement: {tpl.log % args}{self.comment}",
+                f"{self._sec_pg.get(sec) or self._second(sec)}.{_MS3[t // 1000 % 1000]}{self.head}"
+                f"{d // 1000}.{_MS3[d % 1000]}{_STATEMENT}{tpl.log % args}{self.comment}",
             )
         )
 
     def loop(self, tpl: _T, arglists) -> None:
         """Run ``tpl`` once per argument tuple, back to back (what :meth:`q` does, in one call)."""
-        buf, load, t, out = self.bufs[tpl.n], self.load, self.t, self.out
-        head, log, comment, cache = self.head, tpl.log, self.comment, self._sec_pg
-        for args in arglists:
-            if not buf:
-                buf = self._refill(tpl)
-            d = int(buf.pop() * load) + 1
-            t += 50 + (d * 7919) % 120 + d
-            out.append(
-                (
-                    t,
-                    f"{cache.get(t // 1_000_000) or self._second(t // 1_000_000)}."
-                    f"{t // 1000 % 1000:03d}{head}{d // 1000}.{d % 1000:03d} ms  "
-                    f"statement: {log % args}{comment}",
-                )
-            )
-        self.t = t
+        self.seq([(tpl, args) for args in arglists])
 
     def seq(self, items: list[tuple[_T, tuple]]) -> None:
         """Run several statements back to back (what :meth:`q` does, in one call)."""
-        bufs, load, t, out = self.bufs, self.load, self.t, self.out
-        head, comment, cache = self.head, self.comment, self._sec_pg
+        bufs, load, t, append = self.bufs, self.load, self.t, self.out.append
+        head, comment, cache, ms3 = self.head, self.comment, self._sec_pg, _MS3
         for tpl, args in items:
             buf = bufs[tpl.n] or self._refill(tpl)
             d = int(buf.pop() * load) + 1
             t += 50 + (d * 7919) % 120 + d
-            out.append(
+            sec = t // 1_000_000
+            append(
                 (
                     t,
-                    f"{cache.get(t // 1_000_000) or self._second(t // 1_000_000)}."
-                    f"{t // 1000 % 1000:03d}{head}{d // 1000}.{d % 1000:03d} ms  "
-                    f"statement: {tpl.log % args}{comment}",
+                    f"{cache.get(sec) or self._second(sec)}.{ms3[t // 1000 % 1000]}{head}"
+                    f"{d // 1000}.{ms3[d % 1000]}{_STATEMENT}{tpl.log % args}{comment}",
                 )
             )
         self.t = t
@@ -1648,7 +1637,7 @@ def generate(
 def _flush(s: _Sim, f, cut: int | None) -> int:
     """Write buffered log entries that end before ``cut`` (all when None), in log-time order."""
     out = s.out
-    out.sort(key=_first)
+    out.sort()  # by log time; entries with equal times keep a fixed order (by their text)
     if cut is None:
         n = len(out)
     else:
@@ -1662,15 +1651,11 @@ def _flush(s: _Sim, f, cut: int | None) -> int:
         n = lo
     if not n:
         return 0
-    text = "\n".join(entry for _t, entry in out[:n]) + "\n"
+    text = "\n".join([entry for _t, entry in out[:n]]) + "\n"
     del out[:n]
     f.write(text)
     s.entries += n
     return text.count("\n")
-
-
-def _first(entry: tuple[int, str]) -> int:
-    return entry[0]
 
 
 # --------------------------------------------------------------------------------------------------
@@ -1782,7 +1767,7 @@ def advice(
     if len(routes):
         first = routes.sort_values("db_ms_total", ascending=False).iloc[0]
         out.append(
-            f"{first['route']} has the largest share of database time ({first['db_share']:.0%} "
+            f"{first['route']} has the largest share of database time ({_pct(first['db_share'])} "
             f"over {int(first['requests']):,} requests)."
         )
         # common practice, no source: under 10% in the database is "slow elsewhere"; ignore routes
@@ -1792,10 +1777,20 @@ def advice(
             worst = slow.sort_values("elapsed_ms_p95", ascending=False).iloc[0]
             out.append(
                 f"{worst['route']} is slow (p95 {worst['elapsed_ms_p95']:,.0f} ms) but spends only "
-                f"{worst['db_fraction_p50']:.0%} of a typical request in the database: look at "
+                f"{_pct(worst['db_fraction_p50'])} of a typical request in the database: look at "
                 f"the application or the services it calls, not at SQL."
             )
+    if len(templates) and {"template_id", "share", "calls", "p95_ms"} <= set(templates.columns):
+        t = templates.sort_values("total_ms", ascending=False).iloc[0]
+        out.append(
+            f"The most expensive template, {_short(t['template_id'])}, takes {_pct(t['share'])} "
+            f"of all database time over {int(t['calls']):,} calls (p95 {t['p95_ms']:,.1f} ms)."
+        )
     return out
+
+
+def _pct(share: float) -> str:
+    return f"{share:.1%}" if share < 0.01 else f"{share:.0%}"
 
 
 def format_summary(summary: DemoSummary, fmt: str = "table") -> str:

@@ -222,14 +222,14 @@ def test_demo_cli_table_output_has_titles_and_advice(tmp_path: Path) -> None:
     assert f"attrib routes --store {tmp_path / demo.STORE_FILE}" in result.stdout
 
 
-def test_advice_names_redundant_repeat_and_slow_route_outside_database() -> None:
+def test_advice_names_repeat_busiest_route_slow_route_and_top_template() -> None:
     routes = pd.DataFrame(
         {
             "route": ["/a", "/slow", "/rare"],
             "requests": [100, 40, 5],
             "db_ms_total": [500.0, 5.0, 0.1],
             "db_share": [0.98, 0.01, 0.01],
-            "db_fraction_p50": [0.6, 0.02, 0.01],
+            "db_fraction_p50": [0.6, 0.004, 0.01],
             "elapsed_ms_p50": [10.0, 500.0, 800.0],
             "elapsed_ms_p95": [20.0, 900.0, 5000.0],
         }
@@ -245,8 +245,18 @@ def test_advice_names_redundant_repeat_and_slow_route_outside_database() -> None
             "saving_ms_estimate": [200.0, 150.0],
         }
     )
-    lines = demo.advice(routes, pd.DataFrame(), nplus1)
-    assert len(lines) == 3  # one finding per route; the second finding of /a is left to the table
+    templates = pd.DataFrame(
+        {
+            "template_id": ["abcdef0123456789"],
+            "template": ["SELECT ?"],
+            "calls": [3],
+            "total_ms": [100.0],
+            "share": [0.4],
+            "p95_ms": [50.0],
+        }
+    )
+    lines = demo.advice(routes, templates, nplus1)
+    assert len(lines) == 4  # one finding per route; the second finding of /a is left to the table
     assert lines[0] == (
         "/a runs template 01234567… 5.0 times per request with the same values (a redundant "
         "repeat); reusing the first result would save about 2.0 ms per request (median response "
@@ -254,7 +264,13 @@ def test_advice_names_redundant_repeat_and_slow_route_outside_database() -> None
     )
     assert lines[1].startswith("/a has the largest share of database time (98% over 100 requests)")
     # /rare is slower but has too few requests to judge
-    assert lines[2].startswith("/slow is slow (p95 900 ms) but spends only 2% of a typical request")
+    assert lines[2].startswith(
+        "/slow is slow (p95 900 ms) but spends only 0.4% of a typical request"
+    )
+    assert lines[3] == (
+        "The most expensive template, abcdef01…, takes 40% of all database time over 3 calls "
+        "(p95 50.0 ms)."
+    )
 
 
 def test_planted_pattern_counts_by_minimum_length() -> None:
