@@ -746,6 +746,12 @@ class _Sim:
             )
         )
 
+    def tx(self, tpl: _T) -> None:
+        """Transaction control as a driver sends it: no sqlcommenter comment (so no request id)."""
+        comment, self.comment = self.comment, ""
+        self.q(tpl)
+        self.comment = comment
+
     def loop(self, tpl: _T, arglists) -> None:
         """Run ``tpl`` once per argument tuple, back to back (what :meth:`q` does, in one call)."""
         self.seq([(tpl, args) for args in arglists])
@@ -1087,10 +1093,10 @@ def _trail_report(s: _Sim):
     tr, gid = s.r.i(1, N_TRAILS + 1), s.guest()
     _session(s, gid)
     status, note = s.r.pick(_CONDITIONS), s.r.pick(_NOTES)
-    s.q(BEGIN)
+    s.tx(BEGIN)
     s.q(CONDITION_ADD, tr, gid, status, s.r.i(0, 120), _q(note))
     s.q(TRAIL_TOUCH, status, tr)
-    s.q(COMMIT)
+    s.tx(COMMIT)
     s.remember(note)
     return f"/trails/{tr}/conditions", 201
 
@@ -1113,7 +1119,7 @@ def _booking_add(s: _Sim):
     bunk = s.hut_bunk_base[h] + r.i(0, s.hut_bunks[h])
     night, party = s.night(), r.i(1, 5)
     _session(s, gid)
-    s.q(BEGIN)
+    s.tx(BEGIN)
     s.q(BUNK_LOCK, bunk)
     s.q(BUNK_TAKEN, bunk, night)
     if r.chance(0.04):
@@ -1123,7 +1129,7 @@ def _booking_add(s: _Sim):
             'duplicate key value violates unique constraint "bookings_bunk_id_night_key"',
             f"Key (bunk_id, night)=({bunk}, {night}) already exists.",
         )
-        s.q(ROLLBACK)
+        s.tx(ROLLBACK)
         return "/bookings", 409
     s.q(BOOKING_ADD, gid, h, bunk, night, party)
     booking = 100_000 + r.i(0, 900_000)
@@ -1136,7 +1142,7 @@ def _booking_add(s: _Sim):
         s.q(RENTAL_ROWS[n], *rows)
     if r.chance(0.2):
         s.q(WAITLIST_CLEAR, gid, h, night)
-    s.q(COMMIT)
+    s.tx(COMMIT)
     return "/bookings", 201
 
 
@@ -1169,24 +1175,24 @@ def _booking_change(s: _Sim):
                 args.append(r.pick(_DIETS))
             else:
                 args.append(r.i(1, 6) if k == 0 else r.i(1, 4000))
-    s.q(BEGIN)
+    s.tx(BEGIN)
     s.q(BOOKING_LOCK, booking)
     s.q(BOOKING_UPDATES[mask], *args, booking)
     s.q(BOOKING_EVENT, booking, "changed")
-    s.q(COMMIT)
+    s.tx(COMMIT)
     return f"/bookings/{booking}", 200
 
 
 def _booking_cancel(s: _Sim):
     gid, booking, h = s.guest(), 100_000 + s.r.i(0, 900_000), s.hut()
     _session(s, gid)
-    s.q(BEGIN)
+    s.tx(BEGIN)
     s.q(BOOKING_CANCEL, booking, gid)
     night = s.night()
     s.q(WAITLIST_NEXT, h, night)
     if s.r.chance(0.5):
         s.q(WAITLIST_OFFER, s.r.i(1, 50_000))
-    s.q(COMMIT)
+    s.tx(COMMIT)
     return f"/bookings/{booking}", 204
 
 
@@ -1316,10 +1322,10 @@ def _rental_add(s: _Sim):
     rows: list = []
     for k in range(n):
         rows += [booking, h * 10 + k, r.i(1, 3)]
-    s.q(BEGIN)
+    s.tx(BEGIN)
     s.q(RENTAL_ROWS[n], *rows)
     s.q(GEAR_LOAN_UPDATE, _in(range(h * 10, h * 10 + n)))
-    s.q(COMMIT)
+    s.tx(COMMIT)
     return "/gear-rentals", 201
 
 
@@ -1442,10 +1448,10 @@ def _job(s: _Sim, at: int, k: int) -> None:
     s.comment = f" /*application='ridgeline-worker',job='{name}'*/"
     when = s.iso_time(at - 900_000_000).replace("T", " ")[:19]
     if name == "expire_holds":
-        s.q(BEGIN)
+        s.tx(BEGIN)
         s.q(JOB_EXPIRE, when)
         s.q(JOB_EXPIRE_EVENTS, when)
-        s.q(COMMIT)
+        s.tx(COMMIT)
     elif name == "promote_waitlist":
         s.q(JOB_WAITING)
         for _ in range(s.r.i(5, 50)):
@@ -1459,9 +1465,9 @@ def _job(s: _Sim, at: int, k: int) -> None:
         rows: list = []
         for region in range(1, N_REGIONS + 1):
             rows += [region, when, day + " 18:00:00", s.r.pick(_WEATHER), s.r.i(1, 5), s.r.i(0, 90)]
-        s.q(BEGIN)
+        s.tx(BEGIN)
         s.q(JOB_BULLETIN_ROWS, *rows)
-        s.q(COMMIT)
+        s.tx(COMMIT)
         s.q(JOB_ANALYZE)
     s.disconnect(s.t + 200, pid, port, at, _WORKER_HOST)
 
@@ -1525,7 +1531,8 @@ def generate(
         A :class:`DemoTruth` with the paths, line counts and the planted patterns.
 
     >>> import tempfile
-    >>> t = generate(tempfile.mkdtemp(), requests=50)
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     t = generate(folder, requests=50)
     >>> t.requests, t.request_lines
     (50, 50)
     """
