@@ -19,9 +19,10 @@ from __future__ import annotations
 import json
 
 import pytest
+from click.testing import CliRunner
 
-from attrib import nplus1, store
-from attrib.cli import main
+from attrib import ingest, nplus1, store
+from attrib.cli import cli
 from tests.pgserver import PgServer, require_postgres
 from tests.workload import Truth, run_workload, write_request_log
 
@@ -35,12 +36,11 @@ TOLERANCE = 0.5
 PROTOCOL = "simple"  # one logged statement per execution: no parse/bind costs on the first runs
 
 
-def _cli_json(args: list[str], capsys) -> list[dict]:
-    try:
-        main([*args, "--format", "json"])
-    except SystemExit as exc:  # pragma: no cover - a failure shows the message below
-        pytest.fail(f"attrib {' '.join(args)} exited {exc.code}: {capsys.readouterr().err}")
-    return json.loads(capsys.readouterr().out)
+def _cli_json(args: list[str]) -> list[dict]:
+    """Run an attrib command with --format json through click's test runner; return its rows."""
+    result = CliRunner().invoke(cli, [*args, "--format", "json"])
+    assert result.exit_code == 0, (result.output, result.exception)
+    return json.loads(result.stdout)
 
 
 @pytest.fixture(scope="module")
@@ -68,14 +68,19 @@ def stores(tmp_path_factory):
             requests = write_request_log(truth, tmp / f"{name}.jsonl")
             paths[name] = str(tmp / f"{name}.duckdb")
             con = store.connect(paths[name])
-            from attrib import ingest
-
             ingest.ingest(con, [requests], [logs.stderr], ingest.IngestOptions(tz="UTC"))
             con.close()
     return paths
 
 
-def test_whatif_batch_prediction_matches_the_batched_run(stores, capsys):
+@pytest.fixture(scope="module")
+def compared(stores):
+    """`attrib compare --before-store loop --after-store batched`, as JSON rows."""
+    args = ["compare", "--before-store", stores["loop"], "--after-store", stores["batched"]]
+    return _cli_json([*args, "--resamples", "200"])
+
+
+def test_whatif_batch_prediction_matches_the_batched_run(stores, compared):
     con = store.connect(stores["loop"], read_only=True)
     findings = nplus1.find(con)
     con.close()
@@ -84,10 +89,7 @@ def test_whatif_batch_prediction_matches_the_batched_run(stores, capsys):
     child = loop["child_template_id"].iloc[0]
 
     predicted = _cli_json(
-        ["whatif", "--store", stores["loop"], "--batch", child, "--resamples", "500"], capsys
-    )
-    compared = _cli_json(
-        ["compare", "--before-store", stores["loop"], "--after-store", stores["batched"]], capsys
+        ["whatif", "--store", stores["loop"], "--batch", child, "--resamples", "500"]
     )
     p = next(r for r in predicted if r["route"] == ROUTE)
     m = next(r for r in compared if r["route"] == ROUTE)
@@ -106,10 +108,8 @@ def test_whatif_batch_prediction_matches_the_batched_run(stores, capsys):
     assert abs(pred - meas) <= TOLERANCE * meas
 
 
-def test_compare_two_stores_finds_fewer_queries_only_where_the_code_changed(stores, capsys):
-    rows = _cli_json(
-        ["compare", "--before-store", stores["loop"], "--after-store", stores["batched"]], capsys
-    )
+def test_compare_two_stores_finds_fewer_queries_only_where_the_code_changed(compared):
+    rows = compared
     verdicts = {r["route"]: r["queries_verdict"] for r in rows}
     print(f"\nqueries verdicts: {verdicts}")
     print("elapsed verdicts:", {r["route"]: r["elapsed_verdict"] for r in rows})
