@@ -91,6 +91,7 @@ def _shapes(
     folds = lexer.folds_case
     mask, lits = masker.mask, masker.literals
     raw: dict[str, tuple[int, tuple[str, ...]]] = {}
+    by_mask: dict[str, int] = {}
     index: dict[str, int] = {}
     shapes: list[str] = []
     out: list[int] = []
@@ -116,11 +117,17 @@ def _shapes(
                 lits.clear()
                 masked = mask(sql)
                 key = sql
-            s = finish(masked, folds)
-            i = index.get(s)
+            i = by_mask.get(masked)
             if i is None:
-                i = index[s] = len(shapes)
-                shapes.append(s)
+                # finish() runs once per distinct masked text, not once per statement.
+                s = finish(masked, folds)
+                i = index.get(s)
+                if i is None:
+                    i = index[s] = len(shapes)
+                    shapes.append(s)
+                if len(by_mask) >= _RAW_CACHE_MAX:
+                    by_mask.clear()
+                by_mask[masked] = i
             hit = (i, tuple(lits) if with_literals else none)
             if len(raw) >= _RAW_CACHE_MAX:
                 raw.clear()

@@ -29,7 +29,7 @@ from dataclasses import dataclass
 MASK = "'?'"
 
 # What a match becomes (the action of the capturing group that matched).
-DROP, KEEP, LITERAL, PARAM, LITERAL_OPEN, DROP_OPEN = range(6)
+DROP, KEEP, LITERAL, PARAM, LITERAL_OPEN, DROP_OPEN, IN_LIST = range(7)
 
 _NUM_TAIL = r"[\d_]*(?:\.[\d_]*)?(?:[eE][+-]?\d+)?"
 _FRACTION = r"\d[\d_]*(?:[eE][+-]?\d+)?"
@@ -68,6 +68,20 @@ _POSITIONS = (
     rf"(?<![\w$][Bb][Yy])(?<=[Bb][Yy])\s+(?:{_SIMPLE_ITEM}{_ITEM_TAIL}\s*,\s*)*{_SIMPLE_ITEM}{_ITEM_TAIL}{_LIST_END}",
 )
 
+_LIST_NUMBER = r"(?:-\s*)?(?:\d[\d_]*(?:\.[\d_]*)?|\.\d[\d_]*)(?:[eE][+-]?\d+)?"
+_LIST_PARAM = r"\$\d+|\?|%s"
+
+
+def _in_list_rule(string: str) -> tuple[int, str, str]:
+    """``IN (1, 'a', $1)``: a whole list of plain values as one match (fewer matches, faster)."""
+    item = f"(?:{_LIST_NUMBER}|{string}|{_LIST_PARAM})"
+    return (
+        IN_LIST,
+        r"\(",
+        rf"(?:(?<=[^\w$][Ii][Nn]\()|(?<=[^\w$][Ii][Nn]\s\())\s*{item}(?:\s*,\s*{item})+\s*\)(?![\w$.(\[:])",
+    )
+
+
 _SQ_STANDARD = [(LITERAL, "'", r"[^']*(?:''[^']*)*'"), (LITERAL_OPEN, "'", r".*")]
 _SQ_BACKSLASH = [
     (LITERAL, "'", r"[^'\\]*(?:(?:\\.|'')[^'\\]*)*'"),
@@ -83,6 +97,7 @@ def _postgres_rules() -> list[tuple[int, str, str]]:
     # String Constants, 4.1.2.5 Bit-String Constants, 4.1.2.6 Numeric Constants (0x/0o/0b and
     # underscores since 16), 4.1.5 Comments, 4.2.2 Positional Parameters ($n).
     return [
+        _in_list_rule(r"'[^']*(?:''[^']*)*'"),
         # E'...': backslash escapes; picked by looking behind the quote for a lone E.
         (LITERAL, "'", r"(?<![\w$][Ee]')(?<=[Ee]')[^'\\]*(?:(?:\\.|'')[^'\\]*)*'"),
         (LITERAL_OPEN, "'", r"(?<![\w$][Ee]')(?<=[Ee]').*"),
@@ -109,6 +124,7 @@ def _mysql_rules() -> list[tuple[int, str, str]]:
     # unless ANSI_QUOTES), "Identifier Names" (backticks), "Comment Syntax" (#, "-- " followed by
     # whitespace, /* */), "Hexadecimal Literals", "Binary Literals".
     return [
+        _in_list_rule(r"'[^'\\]*(?:(?:\\.|'')[^'\\]*)*'|\"[^\"\\]*(?:(?:\\.|\"\")[^\"\\]*)*\""),
         *_SQ_BACKSLASH,
         *_NUMBERS,
         *_BLOCK_COMMENT,
@@ -126,6 +142,7 @@ def _sqlite_rules() -> list[tuple[int, str, str]]:
     # SQLite documentation, "SQL Language Expressions" (literals; parameters ?NNN :AAA @AAA $AAA)
     # and "SQLite Keywords" (identifiers quoted with "", `` or []).
     return [
+        _in_list_rule(r"'[^']*(?:''[^']*)*'"),
         *_SQ_STANDARD,
         *_NUMBERS,
         *_BLOCK_COMMENT,
@@ -152,6 +169,7 @@ class Lexer:
     pattern: re.Pattern[str]
     actions: tuple[int, ...]
     folds_case: bool  # unquoted identifiers are case-insensitive: the shape may be upper-cased
+    list_item: re.Pattern[str]  # the values inside an IN_LIST match
 
 
 def _chars(first: str) -> list[str]:
@@ -178,7 +196,9 @@ def _combine(rules: list[tuple[int, str, str]]) -> tuple[re.Pattern[str], tuple[
 
 def _lexer(name: str, rules: list[tuple[int, str, str]], folds_case: bool) -> Lexer:
     pattern, actions = _combine(rules + [_POSITIONS])
-    return Lexer(name, pattern, actions, folds_case)
+    in_list = next(rest for action, _, rest in rules if action == IN_LIST)
+    item = re.compile(in_list[in_list.index(r"\s*(?:") + 3 : in_list.index(r"(?:\s*,")])
+    return Lexer(name, pattern, actions, folds_case, item)
 
 
 LEXERS: dict[str, Lexer] = {
@@ -231,6 +251,19 @@ class Masker:
                 return " "
             if action == KEEP:
                 return m.group()
+            if action == IN_LIST:
+                if not keep_literals:
+                    return "('?')"
+                count = 0
+                for item in list_items(m.group(1)):
+                    token = item.group()
+                    count += 1
+                    if token[0] in "$?%":
+                        append(None)
+                    else:
+                        append("-" + token[1:].strip() if token[0] == "-" else token)
+                # One mask per value keeps the literal order; finish() collapses the list.
+                return "(" + ", ".join([MASK] * count) + ")"
             self.open = True
             if action == LITERAL_OPEN:
                 if keep_literals:
@@ -238,6 +271,7 @@ class Masker:
                 return MASK
             return " "
 
+        list_items = lexer.list_item.finditer
         self._sub = lexer.pattern.sub
         self._replace = replace
 
