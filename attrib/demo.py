@@ -1775,7 +1775,7 @@ def advice(
         first = routes.sort_values("db_ms_total", ascending=False).iloc[0]
         out.append(
             f"{first['route']} has the largest share of database time ({_pct(first['db_share'])} "
-            f"over {int(first['requests']):,} requests)."
+            f"over {_count(first['requests'], 'request')})."
         )
         # common practice, no source: under 10% in the database is "slow elsewhere"; ignore routes
         # too rare to judge (fewer than 20 requests)
@@ -1791,9 +1791,14 @@ def advice(
         t = templates.sort_values("total_ms", ascending=False).iloc[0]
         out.append(
             f"The most expensive template, {_short(t['template_id'])}, takes {_pct(t['share'])} "
-            f"of all database time over {int(t['calls']):,} calls (p95 {t['p95_ms']:,.1f} ms)."
+            f"of all database time over {_count(t['calls'], 'call')} (p95 {t['p95_ms']:,.1f} ms)."
         )
     return out
+
+
+def _count(n: object, noun: str) -> str:
+    n = int(n)
+    return f"{n:,} {noun}" + ("" if n == 1 else "s")
 
 
 def _pct(share: float) -> str:

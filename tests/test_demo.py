@@ -22,7 +22,7 @@ from attrib.readers import get as get_reader
 from attrib.records import ReadOptions, Reject, Request, Skip, Statement
 from fingerprints import fingerprint
 
-SMALL = 2_000  # requests: big enough for every planted pattern to run, small enough to be quick
+SMALL = 1_200  # requests: big enough for every planted pattern to run, small enough to be quick
 SEED = 11
 
 
@@ -108,7 +108,7 @@ def test_generate_requests_are_json_lines_with_utc_times(tmp_path: Path) -> None
 def test_generate_only_planted_templates_repeat_within_a_request(tmp_path: Path) -> None:
     # The truth must be the whole truth: outside the planted patterns no statement shape runs twice
     # in one request. Shapes here are a crude literal mask, independent of attrib's fingerprints.
-    t = demo.generate(tmp_path, seed=5, requests=1_500)
+    t = demo.generate(tmp_path, seed=5, requests=1_000)
     mask = re.compile(r"'(?:[^']|'')*'|\b\d+(?:\.\d+)?\b")
     tagged = re.compile(r"statement: (.*) /\*request_id='([^']+)',route='([^']+)'\*/$")
     calls: dict[str, Counter] = defaultdict(Counter)
@@ -215,11 +215,40 @@ def test_demo_cli_output_shows_no_literal_values(demo_run) -> None:
 
 
 def test_demo_cli_table_output_has_titles_and_advice(tmp_path: Path) -> None:
-    result = CliRunner().invoke(cli, ["demo", "--out", str(tmp_path), "--requests", "300"])
+    out = tmp_path / "out"
+    result = CliRunner().invoke(cli, ["demo", "--out", str(out), "--requests", "150"])
     assert result.exit_code == 0, result.output
     for title in ("Top routes", "Top query templates", "Top N+1", "What to look at first"):
         assert title in result.stdout
-    assert f"attrib routes --store {tmp_path / demo.STORE_FILE}" in result.stdout
+    assert f"attrib routes --store {out / demo.STORE_FILE}" in result.stdout
+    truth = demo.generate(tmp_path / "again", requests=150)  # the default seed: the same logs
+    assert [lit for lit in truth.literals if lit in result.stdout] == []
+
+
+def test_demo_cli_csv_output_has_one_block_per_listing(tmp_path: Path) -> None:
+    result = CliRunner().invoke(
+        cli, ["demo", "--out", str(tmp_path), "--requests", "100", "--format", "csv"]
+    )
+    assert result.exit_code == 0, result.output
+    blocks = result.stdout.split("\n\n")
+    assert [b.splitlines()[0] for b in blocks if b.strip()] == [
+        "# routes",
+        "# templates",
+        "# nplus1",
+    ]
+    assert blocks[0].splitlines()[1].startswith("route,requests,")
+
+
+def test_demo_cli_out_that_is_a_file_fails_with_one_line_error(tmp_path: Path, capsys) -> None:
+    from attrib.cli import main
+
+    target = tmp_path / "taken"
+    target.write_text("not a folder")
+    with pytest.raises(SystemExit) as exit_info:
+        main(["demo", "--out", str(target), "--requests", "10"])
+    err = capsys.readouterr().err
+    assert exit_info.value.code != 0
+    assert "Error:" in err and "Traceback" not in err
 
 
 def test_advice_names_repeat_busiest_route_slow_route_and_top_template() -> None:
