@@ -19,6 +19,7 @@ from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from hashlib import blake2b
 from multiprocessing import get_context
+from operator import attrgetter
 from pathlib import Path
 from types import ModuleType
 from typing import Any
@@ -37,6 +38,7 @@ from attrib.records import ReadOptions, Reject, Request, Skip, Statement
 DIALECTS = ("postgres", "mysql", "sqlite", "generic")
 ID_SOURCES = ("comment", "field", "trace")
 EXCERPT_MAX = 200
+PROGRESS_EVERY = 20_000  # records between two progress reports
 ALREADY = "already ingested (same SHA-256)"
 
 # Which (request id, trace id) columns of a staged chunk each id source offers.
@@ -453,23 +455,13 @@ def _consume(
     skips = writer.skips
     rejects = writer.rejects
     chunk = writer.chunk_size
+    tick = PROGRESS_EVERY
     for rec in records:
         kind = type(rec)
         if kind is Statement:
             statements.append(rec)
             if len(statements) >= chunk:
                 writer.flush_statements()
-                if progress is not None:
-                    progress(
-                        Progress(
-                            str(lines.path),
-                            lines.lines_read,
-                            lines.position(),
-                            lines.size,
-                            time.perf_counter() - started,
-                            False,
-                        )
-                    )
         elif kind is Request:
             requests.append(rec)
             if len(requests) >= chunk:
@@ -482,6 +474,15 @@ def _consume(
                 writer.flush_rejects()
         else:
             raise TypeError(f"reader produced {kind.__name__}, not a record")
+        tick -= 1
+        if not tick:
+            tick = PROGRESS_EVERY
+            if progress is not None:
+                elapsed = time.perf_counter() - started
+                where = lines.position()
+                progress(
+                    Progress(str(lines.path), lines.lines_read, where, lines.size, elapsed, False)
+                )
 
 
 class _Writer:
@@ -555,24 +556,26 @@ class _Writer:
                 table,
             )
             self.known_templates.update(fp.id for fp in new)
-        line = [s.line for s in chunk]
+        (line, start, duration, rows, f_req, f_trace, session, user, database, error) = zip(
+            *map(_STATEMENT_FIELDS, chunk), strict=True
+        )
         table = pa.table(
             {
                 "line": pa.array(line, pa.int64()),
                 "seq": pa.array(self._seqs("statements", line), pa.int32()),
-                "started_at": pa.array([s.start_us for s in chunk], pa.timestamp("us")),
-                "duration_ms": pa.array([s.duration_ms for s in chunk], pa.float64()),
-                "rows": pa.array([s.rows for s in chunk], pa.int64()),
+                "started_at": pa.array(start, pa.timestamp("us")),
+                "duration_ms": pa.array(duration, pa.float64()),
+                "rows": pa.array(rows, pa.int64()),
                 "template_id": pa.array(digest.ids, pa.string()),
                 "param_hash": pa.array(digest.hashes, pa.uint64()),
                 "c_req": pa.array(digest.c_req, pa.string()),
                 "c_trace": pa.array(digest.c_trace, pa.string()),
-                "f_req": pa.array([s.request_id for s in chunk], pa.string()),
-                "f_trace": pa.array([s.trace_id for s in chunk], pa.string()),
-                "session": pa.array([s.session for s in chunk], pa.string()),
-                "db_user": pa.array([s.user for s in chunk], pa.string()),
-                "db_name": pa.array([s.database for s in chunk], pa.string()),
-                "error": pa.array([s.error for s in chunk], pa.string()),
+                "f_req": pa.array(f_req, pa.string()),
+                "f_trace": pa.array(f_trace, pa.string()),
+                "session": pa.array(session, pa.string()),
+                "db_user": pa.array(user, pa.string()),
+                "db_name": pa.array(database, pa.string()),
+                "error": pa.array(error, pa.string()),
                 "raw_sql": pa.array(
                     [s.sql for s in chunk] if self.options.keep_raw else [None] * len(chunk),
                     pa.string(),
@@ -586,7 +589,7 @@ class _Writer:
                     session, db_user, db_name, error, raw_sql FROM _chunk""",
             table,
         )
-        lines = sum(s.lines for s in chunk)
+        lines = sum(map(_LINES, chunk))
         self.counts["ingested"] += lines
         self.counts["statements"] += len(chunk)
 
@@ -705,7 +708,7 @@ class _Writer:
         finally:
             self.con.unregister("_chunk")
 
-    def _seqs(self, table: str, line: list[int]) -> list[int]:
+    def _seqs(self, table: str, line: Sequence[int]) -> list[int]:
         """Number records that share a line 0, 1, ... (continuing across chunks)."""
         seq, last = self._seq[table]
         out = []
@@ -715,6 +718,21 @@ class _Writer:
             out.append(seq)
         self._seq[table] = (seq, last)
         return out
+
+
+_LINES = attrgetter("lines")
+_STATEMENT_FIELDS = attrgetter(
+    "line",
+    "start_us",
+    "duration_ms",
+    "rows",
+    "request_id",
+    "trace_id",
+    "session",
+    "user",
+    "database",
+    "error",
+)
 
 
 def _id_expressions(order: Sequence[str]) -> tuple[str, str]:

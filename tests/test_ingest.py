@@ -264,7 +264,8 @@ def test_ingest_empty_file_is_recorded_with_no_lines(con, tmp_path):
     assert (result.files[0].format, result.files[0].lines_read) == ("empty", 0)
 
 
-def test_ingest_failure_midway_leaves_no_partial_file(con):
+def test_ingest_failure_midway_leaves_no_partial_file(con, monkeypatch):
+    monkeypatch.setattr(ingest, "PROGRESS_EVERY", 2)  # report after the first chunk was stored
     calls = []
 
     def stop_after_first_chunk(progress):

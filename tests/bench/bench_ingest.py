@@ -74,6 +74,7 @@ def generate(workdir: Path, statements: int, requests: int, seed: int = 7) -> tu
     web = workdir / f"web-{requests}-{statements}.jsonl"
     if pg.exists() and web.exists():
         return pg, web
+    part_pg, part_web = pg.with_suffix(".part"), web.with_suffix(".part")  # renamed when complete
     rng = random.Random(seed)
     per_request = max(1, statements // requests)
     stamp_cache: dict[int, str] = {}
@@ -88,7 +89,7 @@ def generate(workdir: Path, statements: int, requests: int, seed: int = 7) -> tu
         return f"{text}.{int((t - sec) * 1000):03d} UTC"
 
     written = 0
-    with open(pg, "w") as out_pg, open(web, "w") as out_web:
+    with open(part_pg, "w") as out_pg, open(part_web, "w") as out_web:
         buf: list[str] = []
         for i in range(requests):
             start = BASE + i * PER_REQUEST_GAP_MS / 1000
@@ -135,6 +136,8 @@ def generate(workdir: Path, statements: int, requests: int, seed: int = 7) -> tu
                 out_pg.writelines(buf)
                 buf.clear()
         out_pg.writelines(buf)
+    part_pg.rename(pg)
+    part_web.rename(web)
     return pg, web
 
 
@@ -223,7 +226,7 @@ def main() -> None:
     parser.add_argument("--requests", type=int, default=250_000)
     parser.add_argument("--workers", type=int, default=0, help="ingest fingerprint processes")
     parser.add_argument("--chunk", type=int, default=50_000)
-    parser.add_argument("--workdir", type=Path, default=Path("/tmp/attrib-bench"))
+    parser.add_argument("--workdir", type=Path, default=Path("/tmp/attrib-bench-ingest"))
     parser.add_argument("--profile", action="store_true", help="cProfile one ingest, no more")
     parser.add_argument(
         "--no-compare", action="store_true", help="skip the run at 1/5 of the size (memory check)"
@@ -256,6 +259,10 @@ def main() -> None:
             {files["requests-jsonl"]["requests"]:,} requests
         whole ingest incl. linking: {big["seconds"]:.1f} s
             = {stmts / big["seconds"]:,.0f} statements/s end to end; {big["links"]:,} links
+        CPU time of the ingest process: {big["cpu"]:.1f} s
+            = {stmts / big["cpu"]:,.0f} statements per CPU-second; pool workers: {big["worker_cpu"]:.1f} s
+        load average when done: {os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs
+            (other work on the machine stretches wall-clock figures, not CPU figures)
         child process wall time: {big["wall"]:.1f} s
         peak RSS: {big["rss_mib"]:,.0f} MiB (target < 2048 MiB); largest pool worker:
             {big["worker_rss_mib"]:,.0f} MiB
