@@ -150,8 +150,12 @@ def _fill(skeleton: str, rng: random.Random) -> str:
     return "".join(parts)
 
 
-def workload(n: int, seed: int = 7, templates: int = 400) -> list[str]:
-    """``n`` realistic statements: Zipf-like template popularity, request ids in comments."""
+def workload(n: int, seed: int = 7, templates: int = 400, repeat_share: float = 0.5) -> list[str]:
+    """``n`` statements: Zipf-like template popularity, request ids in comments.
+
+    ``repeat_share`` of the statements (after the first 50,000) repeat the text of an earlier one
+    apart from the comment, as hot rows and parameterised ($n) statements do in real logs.
+    """
     rng = random.Random(seed)
     skeletons = _templates(rng, templates)
     weights = [1.0 / (rank + 1) for rank in range(len(skeletons))]
@@ -159,7 +163,7 @@ def workload(n: int, seed: int = 7, templates: int = 400) -> list[str]:
     out = []
     for i in range(n):
         sql = pool[i % len(pool)] if i >= len(pool) else pool[i]
-        if i >= len(pool) and rng.random() < 0.5:
+        if i >= len(pool) and rng.random() >= repeat_share:
             sql = _fill(rng.choices(skeletons, weights)[0], rng)
         request_id = f"{rng.getrandbits(64):016x}"
         route = rng.choice(ROUTES).replace("/", "%2F")
@@ -167,50 +171,86 @@ def workload(n: int, seed: int = 7, templates: int = 400) -> list[str]:
     return out
 
 
-def _rate(count: int, seconds: float) -> str:
-    return f"{count / seconds:,.0f} statements/s"
+def _timed(fn):
+    """Run ``fn``; return its result, wall seconds and CPU seconds (this process + children)."""
+    import resource
+
+    def cpu() -> float:
+        own = resource.getrusage(resource.RUSAGE_SELF)
+        kids = resource.getrusage(resource.RUSAGE_CHILDREN)
+        return own.ru_utime + own.ru_stime + kids.ru_utime + kids.ru_stime
+
+    c0, t0 = cpu(), time.perf_counter()
+    result = fn()
+    return result, time.perf_counter() - t0, cpu() - c0
+
+
+def _line(label: str, count: int, wall: float, cpu: float) -> None:
+    print(
+        f"{label:48s} wall {wall:7.2f} s {count / wall:>11,.0f}/s | "
+        f"cpu {cpu:7.2f} s {count / cpu:>11,.0f}/s"
+    )
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--statements", type=int, default=2_000_000)
     parser.add_argument("--naive-sample", type=int, default=2_000)
+    parser.add_argument("--repeat-share", type=float, default=0.5)
     parser.add_argument("--dialect", default="postgres")
     args = parser.parse_args()
+    n = args.statements
 
+    print(f"load average before: {os.getloadavg()}, cpus: {os.cpu_count()}")
     t0 = time.perf_counter()
-    statements = workload(args.statements)
-    print(f"generated {len(statements):,} statements in {time.perf_counter() - t0:.1f} s")
-
-    t0 = time.perf_counter()
-    batch = fingerprints.fingerprint_many(statements, dialect=args.dialect)
-    fast = time.perf_counter() - t0
+    statements = workload(n, repeat_share=args.repeat_share)
+    texts = {s[: s.rfind("/*")] for s in statements}
     print(
-        f"fingerprint_many: {fast:.2f} s, {_rate(len(statements), fast)}, "
-        f"{len(batch.templates)} distinct templates"
+        f"generated {n:,} statements in {time.perf_counter() - t0:.1f} s; "
+        f"{len(texts):,} distinct texts once the comment is cut "
+        f"({1 - len(texts) / n:.0%} repeats); mean length "
+        f"{sum(map(len, statements)) / n:.0f} chars"
     )
+    del texts
 
-    t0 = time.perf_counter()
-    batch_lit = fingerprints.fingerprint_many(statements, dialect=args.dialect, with_literals=True)
-    fast_lit = time.perf_counter() - t0
-    print(
-        f"fingerprint_many(with_literals=True): {fast_lit:.2f} s, {_rate(len(statements), fast_lit)}"
-    )
-    assert batch_lit.ids == batch.ids
+    from fingerprints.normalize import normalize
+
+    def run(**kwargs):
+        normalize.cache_clear()  # every run parses its distinct shapes itself
+        return fingerprints.fingerprint_many(statements, dialect=args.dialect, **kwargs)
+
+    one, one_wall, one_cpu = _timed(lambda: run(processes=1))
+    _line("fingerprint_many (processes=1)", n, one_wall, one_cpu)
+    batch, fast, fast_cpu = _timed(lambda: run())
+    _line("fingerprint_many (auto processes)", n, fast, fast_cpu)
+    print(f"  {len(batch.templates)} distinct templates")
+    lit, lit_wall, lit_cpu = _timed(lambda: run(with_literals=True))
+    _line("fingerprint_many (with_literals=True)", n, lit_wall, lit_cpu)
+    assert lit.ids == batch.ids == one.ids
+    del one, lit
 
     import sqlglot
 
+    from fingerprints.normalize import SQLGLOT_DIALECT
+
     sample = statements[: args.naive_sample]
-    t0 = time.perf_counter()
-    for sql in sample:
-        try:
-            sqlglot.parse_one(sql, read=args.dialect)
-        except Exception:  # noqa: BLE001 - the naive loop just counts failures as work done
-            pass
-    naive = time.perf_counter() - t0
-    naive_rate = len(sample) / naive
-    print(f"naive sqlglot.parse_one loop ({len(sample):,} sample): {naive_rate:,.0f} statements/s")
-    print(f"ratio fingerprint_many / naive: {len(statements) / fast / naive_rate:,.0f}x")
+
+    def naive() -> None:
+        for sql in sample:
+            try:
+                sqlglot.parse_one(sql, read=SQLGLOT_DIALECT[args.dialect] or None)
+            except Exception:  # noqa: BLE001 - a failed parse is work done too
+                pass
+
+    _, naive_wall, naive_cpu = _timed(naive)
+    _line(
+        f"naive sqlglot.parse_one loop ({len(sample):,} sample)", len(sample), naive_wall, naive_cpu
+    )
+    naive_rate = len(sample) / naive_wall
+    print(f"ratio fingerprint_many / naive (wall): {n / fast / naive_rate:,.0f}x")
+    print(
+        f"ratio fingerprint_many / naive (cpu):  {(n / fast_cpu) / (len(sample) / naive_cpu):,.0f}x"
+    )
 
     import duckdb
 
@@ -221,28 +261,24 @@ def main() -> None:
                 fh.write(sql.replace("\n", " "))
                 fh.write("\n")
         con = duckdb.connect()
-        t0 = time.perf_counter()
-        rows = con.execute(
-            "SELECT count(*), sum(length(line)) FROM read_csv(?, columns={'line': 'VARCHAR'}, "
-            "delim='\\x01', quote='', escape='', header=false, auto_detect=false)",
-            [path],
-        ).fetchone()
-        floor = time.perf_counter() - t0
-        t0 = time.perf_counter()
-        lines = con.execute(
-            "SELECT line FROM read_csv(?, columns={'line': 'VARCHAR'}, delim='\\x01', quote='', "
-            "escape='', header=false, auto_detect=false)",
-            [path],
-        ).fetchall()
-        floor_py = time.perf_counter() - t0
-        del lines
-    print(
-        f"duckdb read_csv of the same lines (count + sum(length)): {floor:.2f} s, rows={rows[0]:,}"
-    )
-    print(f"duckdb read_csv into Python strings (fetchall): {floor_py:.2f} s")
-    print(
-        f"ratio fingerprint_many / bare read: {fast / floor:.1f}x (vs fetchall: {fast / floor_py:.1f}x)"
-    )
+        reader = (
+            "read_csv(?, columns={'line': 'VARCHAR'}, delim='\\x01', quote='', escape='', "
+            "header=false, auto_detect=false)"
+        )
+        rows, floor, floor_cpu = _timed(
+            lambda: con.execute(
+                f"SELECT count(*), sum(length(line)) FROM {reader}", [path]
+            ).fetchone()
+        )
+        _line("duckdb read_csv, count + sum(length)", n, floor, floor_cpu)
+        assert rows[0] == n
+        _, floor_py, floor_py_cpu = _timed(
+            lambda: con.execute(f"SELECT line FROM {reader}", [path]).fetchall()
+        )
+        _line("duckdb read_csv into Python strings", n, floor_py, floor_py_cpu)
+    print(f"ratio fingerprint_many / bare read (wall): {fast / floor:.1f}x")
+    print(f"ratio fingerprint_many / read into Python (wall): {fast / floor_py:.1f}x")
+    print(f"load average after: {os.getloadavg()}")
 
 
 if __name__ == "__main__":
