@@ -16,6 +16,7 @@ TAB continuation lines, ERROR/DETAIL/STATEMENT groups, ``connection received``/`
 
 from __future__ import annotations
 
+import bisect
 import heapq
 import math
 import os
@@ -1551,7 +1552,6 @@ def generate(
         "/*request_id='r-{:06d}',route='" + quote(route, safe="") + "'*/"
         for _m, route, *_ in ROUTES
     ]
-    end_us = start_us + int(hours * 3600 * 1_000_000)
 
     # the web tier's connection pool: (free_at, slot, pid, port, connected_at)
     pool = []
@@ -1569,7 +1569,7 @@ def generate(
         open(out / REQUESTS_FILE, "w", encoding="utf-8", newline="\n") as req_f,
         open(out / QUERIES_FILE, "w", encoding="utf-8", newline="\n") as pg_f,
     ):
-        req_buf: list[str] = []
+        req_out: list[tuple[int, str]] = []  # (end time, line): loggers write at response end
         for i in range(requests):
             t0 = starts_l[i]
             while next_job <= t0 or next_ckpt <= t0:
@@ -1600,18 +1600,25 @@ def generate(
             heapq.heappush(pool, (s.t + 50, slot, pid, port, since))
             t_end = s.t + int(0.7 * nondb) + 200
             elapsed = t_end - t0
-            req_buf.append(
-                f'{{"timestamp": "{s.iso_time(t0)}", "request_id": "r-{i + 1:06d}", '
-                f'"method": "{method}", "route": "{route}", "path": "{path}", '
-                f'"status": {status}, "elapsed_ms": {elapsed // 1000}.{elapsed % 1000:03d}}}\n'
+            req_out.append(
+                (
+                    t_end,
+                    f'{{"timestamp": "{s.iso_time(t_end)}", "request_id": "r-{i + 1:06d}", '
+                    f'"method": "{method}", "route": "{route}", "path": "{path}", '
+                    f'"status": {status}, "elapsed_ms": {elapsed // 1000}.{elapsed % 1000:03d}}}',
+                )
             )
-            if len(req_buf) >= 1024 or i == requests - 1:
-                req_f.write("".join(req_buf))
-                request_lines += len(req_buf)
-                req_buf.clear()
-                cut = min(starts_l[i + 1] if i + 1 < requests else end_us * 10, next_job, next_ckpt)
-                query_lines += _flush(s, pg_f, cut)
-        query_lines += _flush(s, pg_f, None)
+            if (i + 1) % 1024 == 0 and i + 1 < requests:
+                # every later entry ends after the next request starts (or the next background event)
+                cut = min(starts_l[i + 1], next_job, next_ckpt)
+                request_lines += _flush(req_out, req_f, cut)[1]
+                entries, lines = _flush(s.out, pg_f, cut)
+                s.entries += entries
+                query_lines += lines
+        request_lines += _flush(req_out, req_f, None)[1]
+        entries, lines = _flush(s.out, pg_f, None)
+        s.entries += entries
+        query_lines += lines
 
     planted = tuple(
         PlantedPattern(
@@ -1641,28 +1648,17 @@ def generate(
     )
 
 
-def _flush(s: _Sim, f, cut: int | None) -> int:
-    """Write buffered log entries that end before ``cut`` (all when None), in log-time order."""
-    out = s.out
-    out.sort()  # by log time; entries with equal times keep a fixed order (by their text)
-    if cut is None:
-        n = len(out)
-    else:
-        lo, hi = 0, len(out)
-        while lo < hi:
-            mid = (lo + hi) // 2
-            if out[mid][0] < cut:
-                lo = mid + 1
-            else:
-                hi = mid
-        n = lo
+def _flush(out: list[tuple[int, str]], f, cut: int | None) -> tuple[int, int]:
+    """Write the buffered entries of ``out`` stamped before ``cut`` (all when None) in time order;
+    return (entries, lines) written."""
+    out.sort()  # by time; entries with equal times keep a fixed order (by their text)
+    n = len(out) if cut is None else bisect.bisect_left(out, (cut,))
     if not n:
-        return 0
+        return 0, 0
     text = "\n".join([entry for _t, entry in out[:n]]) + "\n"
     del out[:n]
     f.write(text)
-    s.entries += n
-    return text.count("\n")
+    return n, text.count("\n")
 
 
 # --------------------------------------------------------------------------------------------------

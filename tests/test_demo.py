@@ -170,6 +170,25 @@ def test_demo_store_accounts_for_every_line(demo_run) -> None:
     ]  # fmt: skip
 
 
+def test_demo_statements_fall_inside_their_requests(demo_run) -> None:
+    # Request lines carry the end time (reader: start = timestamp - elapsed); statement lines carry
+    # their end time too. Both are cut to milliseconds, hence the 1 ms tolerance.
+    out, _result, t = demo_run
+    with attrib.open(out / demo.STORE_FILE, read_only=True) as s:
+        linked, outside = s.con.execute(
+            """
+            SELECT count(*),
+                   count(*) FILTER (WHERE s.started_at < r.started_at - INTERVAL 1 MILLISECOND
+                       OR s.started_at + to_microseconds(CAST(s.duration_ms * 1000 AS BIGINT))
+                          > r.started_at + to_microseconds(CAST(r.elapsed_ms * 1000 AS BIGINT))
+                            + INTERVAL 1 MILLISECOND)
+            FROM statements s JOIN requests r USING (request_id)
+            """
+        ).fetchone()
+    assert linked > t.statements * 0.9
+    assert outside == 0
+
+
 def test_nplus1_recovers_every_planted_pattern(demo_run) -> None:
     out, _result, t = demo_run
     min_repeats = 3  # attrib's default
