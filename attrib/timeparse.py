@@ -23,6 +23,7 @@ from __future__ import annotations
 import re
 from datetime import UTC, datetime, timedelta
 from decimal import Decimal, InvalidOperation
+from functools import lru_cache
 from zoneinfo import ZoneInfo
 
 from attrib.errors import TimezoneError
@@ -74,9 +75,16 @@ def iso_us(text: str, tz: ZoneInfo | None) -> int:
 def ncsa_us(text: str) -> int:
     """Parse an NCSA log time (``10/Oct/2000:13:55:36 -0700``, brackets optional) into µs.
 
+    Results are cached: an access log repeats each second's time on many lines.
+
     >>> ncsa_us("[05/Mar/2024:14:02:11 +0000]")
     1709647331000000
     """
+    return _ncsa_us(text)
+
+
+@lru_cache(maxsize=4096)
+def _ncsa_us(text: str) -> int:
     match = _NCSA.match(text.strip().strip("[]"))
     if match is None:
         raise ValueError("bad NCSA timestamp")

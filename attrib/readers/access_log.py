@@ -46,7 +46,7 @@ the server logged them correctly, but they name no route.
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 
 from attrib.comments import trace_id as traceparent_trace_id
 from attrib.errors import MappingError
@@ -113,7 +113,7 @@ _UNITS = {"elapsed_s": "s", "elapsed_ms": "ms", "elapsed_us": "us"}
 _PLACEHOLDER = re.compile(r"\{([A-Za-z_]*)\}")
 _CLF_HEAD = re.compile(r'\S+ \S+ .*?\[\d{1,2}/[A-Za-z]{3}/\d{4}:\d{2}:\d{2}:\d{2} [+-]\d{4}\] "')
 _METHOD = re.compile(r"[A-Z][A-Z0-9_-]{0,31}\Z")
-_QUOTED = r'((?:[^"\\]|\\.)*)'
+_QUOTED = r'([^"\\]*(?:\\.[^"\\]*)*)'
 _BRACKETED = r"([^\]]*)"
 _BARE = r"(\S+)"
 _ANY = r"(.*?)"
@@ -162,7 +162,11 @@ class AccessFormat:
             )
         if not {"request", "path", "route"} & set(self.fields):
             raise MappingError("--access-format has no {request}, {path} or {route} field")
-        self.index = {name: i + 1 for i, name in reversed(list(enumerate(self.fields)))}
+        repeated = sorted({f for f in self.fields if f != "_" and self.fields.count(f) > 1})
+        if repeated:
+            raise MappingError(f"field {{{repeated[0]}}} appears twice in --access-format")
+        self.unit = _UNITS[self.elapsed]
+        self.parse_time = _time_parser(self.time[0])
 
 
 def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Record]:
@@ -194,12 +198,8 @@ def _record(number: int, text: str, fmt: AccessFormat) -> Record:
     match = fmt.regex.match(text)
     if match is None:
         return Reject(number, "line does not match the access format", text[:EXCERPT])
-    index = fmt.index
-
-    def get(name: str) -> str | None:
-        i = index.get(name)
-        return match.group(i) if i is not None else None
-
+    values = dict(zip(fmt.fields, match.groups(), strict=True))
+    get = values.get
     try:
         method = get("method")
         target = get("path")
@@ -217,8 +217,8 @@ def _record(number: int, text: str, fmt: AccessFormat) -> Record:
             raise BadValue("no route or path")
         if method is not None and not _METHOD.match(method):
             method = None if method == "-" else _bad("bad method")
-        elapsed_ms = to_elapsed_ms(get(fmt.elapsed), _UNITS[fmt.elapsed])
-        start_us = _time(get(fmt.time[0]), fmt.time[0])
+        elapsed_ms = to_elapsed_ms(get(fmt.elapsed), fmt.unit)
+        start_us = fmt.parse_time(get(fmt.time[0]))
         if fmt.time[1]:
             start_us = _checked(start_us - round(elapsed_ms * 1000))
         trace = to_trace_id(get("trace_id")) or traceparent_trace_id(to_text(get("traceparent")))
@@ -237,17 +237,32 @@ def _record(number: int, text: str, fmt: AccessFormat) -> Record:
         return Reject(number, str(exc), text[:EXCERPT])
 
 
-def _time(value: str | None, field: str) -> int:
-    if value is None or value in ("", "-"):
-        raise BadValue("no timestamp")
-    try:
-        if field.startswith("epoch"):
-            return epoch_us(value, "s")
-        if field.startswith("iso"):
-            return iso_us(value, None)
-        return ncsa_us(value)
-    except ValueError as exc:
-        raise BadValue(str(exc)) from None
+def _time_parser(field: str) -> Callable[[str | None], int]:
+    parse: Callable[[str], int]
+    if field.startswith("epoch"):
+        parse = _epoch_seconds
+    elif field.startswith("iso"):
+        parse = _iso_with_offset
+    else:
+        parse = ncsa_us
+
+    def parse_time(value: str | None) -> int:
+        if value is None or value in ("", "-"):
+            raise BadValue("no timestamp")
+        try:
+            return parse(value)
+        except ValueError as exc:
+            raise BadValue(str(exc)) from None
+
+    return parse_time
+
+
+def _epoch_seconds(value: str) -> int:
+    return epoch_us(value, "s")
+
+
+def _iso_with_offset(value: str) -> int:
+    return iso_us(value, None)
 
 
 def _checked(us: int) -> int:

@@ -248,20 +248,23 @@ def attributes(items: object) -> dict[str, object]:
     {'http.status_code': 200, 'http.route': '/orders/{id}'}
     """
     out: dict[str, object] = {}
-    if not isinstance(items, list):
+    if type(items) is not list:
         return out
     for item in items:
-        if isinstance(item, dict) and isinstance(item.get("key"), str):
-            out[item["key"]] = any_value(item.get("value"))
+        if type(item) is dict:
+            key = item.get("key")
+            if type(key) is str:
+                out[key] = any_value(item.get("value"))
     return out
 
 
 def any_value(value: object) -> object:
     """The Python value of an OTLP ``AnyValue`` (int64 may come as a string or a number)."""
-    if not isinstance(value, dict):
+    if type(value) is not dict:
         return None
-    if "stringValue" in value:
-        return value["stringValue"]
+    text = value.get("stringValue")
+    if text is not None:
+        return text
     if "intValue" in value:
         raw = value["intValue"]
         try:

@@ -27,13 +27,14 @@ import json
 import math
 import re
 from collections.abc import Callable, Iterable, Iterator
+from functools import lru_cache
 from zoneinfo import ZoneInfo
 
 from attrib.comments import trace_id as traceparent_trace_id
 from attrib.errors import MappingError
 from attrib.records import ReadOptions, Record, Reject, Request, Skip
 from attrib.routes import derive_route, url_path
-from attrib.timeparse import check_range, timestamp_us
+from attrib.timeparse import MAX_US, MIN_US, timestamp_us
 
 NAME = "requests-jsonl"
 KIND = "requests"
@@ -212,38 +213,42 @@ def build_request(
     line: int, values: dict[str, object], unit: str, tz: ZoneInfo | None
 ) -> Request | Reject:
     """Turn one record's field values into a Request, or a Reject naming the first bad value."""
+    get = values.get
     try:
-        elapsed_ms = to_elapsed_ms(values.get("elapsed"), unit)
-        start = values.get("start")
+        elapsed_ms = to_elapsed_ms(get("elapsed"), unit)
+        start = get("start")
         if start is not None and start != "":
             start_us = _time(start, tz)
         else:
-            end = values.get("timestamp")
+            end = get("timestamp")
             if end is None or end == "":
                 raise BadValue("no timestamp")
             start_us = _time(end, tz) - round(elapsed_ms * 1000)
-            try:
-                check_range(start_us)
-            except ValueError as exc:
-                raise BadValue(str(exc)) from None
-        path_value = to_text(values.get("path"))
-        path = url_path(path_value) if path_value else None
-        route = to_text(values.get("route")) or (derive_route(path) if path else None)
+            if not MIN_US <= start_us < MAX_US:
+                raise BadValue("timestamp out of range")
+        path = to_text(get("path"))
+        if path is not None and (path[0] != "/" or "?" in path or "#" in path):
+            path = url_path(path)
+        route = to_text(get("route")) or (derive_route(path) if path else None)
         if route is None:
             raise BadValue("no route or path")
-        trace = to_trace_id(values.get("trace_id")) or traceparent_trace_id(
-            to_text(values.get("traceparent"))
-        )
+        trace = get("trace_id")
+        if trace is not None:
+            trace = to_trace_id(trace)
+        if trace is None:
+            parent = get("traceparent")
+            if parent is not None:
+                trace = traceparent_trace_id(to_text(parent))
         return Request(
             line,
             start_us,
             elapsed_ms,
-            to_text(values.get("request_id")),
+            to_text(get("request_id")),
             trace,
-            to_method(values.get("method")),
+            to_method(get("method")),
             route,
             path,
-            to_status(values.get("status")),
+            to_status(get("status")),
         )
     except BadValue as exc:
         return Reject(line, str(exc))
@@ -255,18 +260,22 @@ def to_elapsed_ms(value: object, unit: str) -> float:
     >>> to_elapsed_ms("0.034", "s"), to_elapsed_ms("34120us", "ms"), to_elapsed_ms(12, "ms")
     (34.0, 34.12, 12.0)
     """
-    if isinstance(value, int | float) and not isinstance(value, bool):
-        ms = value * _TO_MS[unit]
-    elif isinstance(value, str):
-        text = value.strip()
+    kind = type(value)
+    if kind is int or kind is float:
+        ms = value * _TO_MS[unit]  # type: ignore[operator]
+    elif kind is str:
+        text = value.strip()  # type: ignore[union-attr]
         if text in ("", "-"):
             raise BadValue("no elapsed time")
-        if text.startswith("-"):
+        if text[0] == "-":
             raise BadValue("negative elapsed time")
-        match = _DURATION.match(text)
-        if match is None:
-            raise BadValue("bad elapsed time")
-        ms = float(match.group(1)) * _TO_MS[match.group(2) or unit]
+        try:
+            ms = float(text) * _TO_MS[unit]
+        except ValueError:
+            match = _DURATION.match(text)
+            if match is None:
+                raise BadValue("bad elapsed time") from None
+            ms = float(match.group(1)) * _TO_MS[match.group(2) or unit]
     elif value is None:
         raise BadValue("no elapsed time")
     else:
@@ -280,9 +289,11 @@ def to_elapsed_ms(value: object, unit: str) -> float:
 
 def to_status(value: object) -> int | None:
     """An HTTP status code (100-599), None when absent; anything else is a BadValue."""
+    if type(value) is int and 100 <= value <= 599:  # type: ignore[operator]
+        return value  # type: ignore[return-value]
     if value is None or value == "" or value == "-":
         return None
-    if isinstance(value, str) and value.strip().isdigit():
+    if isinstance(value, str) and value.strip().isdigit() and value.isascii():
         value = int(value)
     if isinstance(value, int) and not isinstance(value, bool) and 100 <= value <= 599:
         return value
@@ -293,20 +304,26 @@ def to_method(value: object) -> str | None:
     """An HTTP method token in upper case, None when absent."""
     if value is None or value == "" or value == "-":
         return None
-    if isinstance(value, str):
-        method = value.strip().upper()
-        if _METHOD.match(method):
+    if type(value) is str:
+        method = _method(value)
+        if method is not None:
             return method
     raise BadValue("bad method")
 
 
+@lru_cache(maxsize=1024)
+def _method(text: str) -> str | None:
+    method = text.strip().upper()
+    return method if _METHOD.match(method) else None
+
+
 def to_text(value: object) -> str | None:
     """A string field (numbers are written out), None when absent or "-"."""
-    if value is None:
-        return None
     if isinstance(value, str):
         text = value.strip()
         return text if text and text != "-" else None
+    if value is None:
+        return None
     if isinstance(value, int | float) and not isinstance(value, bool):
         return str(value)
     raise BadValue("bad field value")
