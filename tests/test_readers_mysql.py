@@ -320,3 +320,10 @@ def test_read_set_timestamp_out_of_range_is_rejected() -> None:
     (record,) = _read(lines)
     assert isinstance(record, Reject) and record.reason == "timestamp out of range"
     assert record.lines == 5
+
+
+@pytest.mark.parametrize("name", ALL_FIXTURES)
+def test_detect_among_all_statement_readers_picks_mysql_slow(name: str) -> None:
+    from attrib.readers import detect
+
+    assert detect(_lines(FIXTURES / name)[:20], "statements", name) is mysql_slow

@@ -224,3 +224,10 @@ def test_read_large_statement_line_is_kept_whole() -> None:
 )
 def test_error_code_keeps_codes_and_drops_messages(value: object, expected: str | None) -> None:
     assert sql_jsonl.error_code(value) == expected
+
+
+@pytest.mark.parametrize("name", ALL_FIXTURES)
+def test_detect_among_all_statement_readers_picks_sql_jsonl(name: str) -> None:
+    from attrib.readers import detect
+
+    assert detect(_lines(FIXTURES / name)[:20], "statements", name) is sql_jsonl
