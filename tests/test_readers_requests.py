@@ -550,3 +550,16 @@ def test_requests_jsonl_field_names_are_found_after_a_long_garbage_preamble():
     records = list(requests_jsonl.read(enumerate(lines, 1), ReadOptions()))
     assert len(rejects(records)) == 150
     assert [r.line for r in requests(records)] == [151, 152, 153]
+
+
+def test_requests_jsonl_two_duration_mappings_raise_mapping_error():
+    options = ReadOptions(request_fields={"elapsed_ms": "duration_ms", "elapsed_s": "duration_ms"})
+    with pytest.raises(MappingError, match="only one duration field"):
+        read("requests-jsonl/001_basic.log", options)
+
+
+def test_access_log_repeated_field_raises_mapping_error():
+    lines = lines_of(LOGS / "access-log/001_nginx_timed.log")
+    options = ReadOptions(access_format="nginx {request_id} {elapsed_s} {request_id}")
+    with pytest.raises(MappingError, match=r"\{request_id\} appears twice"):
+        list(access_log.read(enumerate(lines, 1), options))

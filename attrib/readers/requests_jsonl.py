@@ -133,6 +133,9 @@ class FieldPlan:
         if unknown:
             known = ", ".join([*DEFAULTS, *ELAPSED_KEYS])
             raise MappingError(f"unknown request field {unknown[0]!r}; known fields: {known}")
+        units = [key for key in ELAPSED_KEYS if key in mapping]
+        if len(units) > 1:
+            raise MappingError(f"map only one duration field, not {' and '.join(units)}")
         seen = _keys_seen(records)
 
         def present(name: str) -> bool:
