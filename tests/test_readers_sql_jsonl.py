@@ -155,7 +155,7 @@ def test_read_hostile_lines_are_rejected_with_reasons() -> None:
 
 def test_read_mapped_field_that_never_appears_raises_mapping_error() -> None:
     lines = _lines(FIXTURES / "001_app_logger_defaults.log")
-    with pytest.raises(MappingError, match="--statement-field request_id=NAME") as info:
+    with pytest.raises(MappingError, match="--query-field request_id=NAME") as info:
         _read(lines, statement_fields={"request_id": "req"})
     assert "\n" not in str(info.value) and "'req'" in str(info.value)
 
@@ -176,7 +176,7 @@ def test_read_mapped_error_field_may_never_appear() -> None:
 
 def test_read_log_without_any_sql_field_raises_mapping_error() -> None:
     lines = [json.dumps({"ts": T0 / 1e6, "text": "SELECT 1", "duration_ms": 1})] * 3
-    with pytest.raises(MappingError, match="--statement-field sql=NAME"):
+    with pytest.raises(MappingError, match="--query-field sql=NAME"):
         _read(lines)
 
 

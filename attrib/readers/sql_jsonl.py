@@ -49,7 +49,7 @@ KIND = "statements"
 
 HOLD = 10_000
 EXCERPT = 200
-FLAG = "--statement-field"
+FLAG = "--query-field"
 
 #: Our field names and the log names tried when the user maps none (in order of preference).
 DEFAULTS: dict[str, tuple[str, ...]] = {
