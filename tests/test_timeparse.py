@@ -47,7 +47,9 @@ def test_iso_us_naive_uses_given_zone_including_dst():
 @pytest.mark.parametrize(
     ("text", "expected"),
     [
-        # The example of the Apache HTTP Server docs (mod_log_config, "%t") and NCSA CLF.
+        # Apache HTTP Server docs, "Log Files" > Common Log Format example line
+        # (127.0.0.1 - frank [10/Oct/2000:13:55:36 -0700] ...); grammar of the date field from the
+        # Apache 1.3 mod_log_common docs: [day/month/year:hour:minute:second zone], zone = +|- 4 digits.
         (
             "[10/Oct/2000:13:55:36 -0700]",
             int(datetime(2000, 10, 10, 20, 55, 36, tzinfo=UTC).timestamp()) * US,
