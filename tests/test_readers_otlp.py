@@ -52,7 +52,8 @@ def test_read_current_semconv_gives_requests_and_statements_per_line():
         "/orders/9051",
         200,
     )
-    # http.request.header.<name> attributes are string arrays (semconv); the first value is taken.
+    # http.request.header.<name> attributes are string arrays (semconv; from memory, unchecked);
+    # the first value is taken.
     assert request.request_id == "5f0c9a3e7b2d41c88e6a0b1d2c3f4e5a"
     assert (select.start_us, select.duration_ms, select.trace_id) == (BASE_US + 4200, 0.9, T1)
     assert (select.sql, select.rows, select.database, select.error) == (

@@ -26,7 +26,7 @@ Each line holds ``resourceSpans`` → ``scopeSpans`` (older producers: ``instrum
   ``no statement text`` when its only database spans carry no text).
 
 Ids are read as hex (normalised to lower case); a 24-character base64 id, as some early exporters
-wrote, is decoded to hex. A span whose times are missing, out of range or end before they start is
+wrote (from memory, unchecked: the proto3 JSON default for bytes), is decoded to hex. A span whose times are missing, out of range or end before they start is
 rejected; the first record of a line carries ``lines=1``, the others ``lines=0``.
 """
 
