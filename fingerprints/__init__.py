@@ -141,6 +141,11 @@ def _shapes(
 _WORK: list[str] = []
 
 
+def _init_worker(statements: list[str]) -> None:
+    global _WORK
+    _WORK = statements  # a forked worker inherits the list: nothing is pickled
+
+
 def _work_chunk(args: tuple[int, int, str, bool]):
     start, stop, dialect, with_literals = args
     return _shapes(_WORK[start:stop], dialect, with_literals)
@@ -149,18 +154,12 @@ def _work_chunk(args: tuple[int, int, str, bool]):
 def _parallel(statements: list[str], dialect: str, with_literals: bool, processes: int):
     import multiprocessing
 
-    global _WORK
-    _WORK = statements  # inherited by forked workers, never pickled
-    try:
-        step = -(-len(statements) // processes)
-        chunks = [
-            (i, min(i + step, len(statements)), dialect, with_literals)
-            for i in range(0, len(statements), step)
-        ]
-        with multiprocessing.get_context("fork").Pool(processes) as pool:
-            results = pool.map(_work_chunk, chunks)
-    finally:
-        _WORK = []
+    n = len(statements)
+    step = max(1, -(-n // (processes * 4)))  # a few chunks per process balance uneven load
+    chunks = [(i, min(i + step, n), dialect, with_literals) for i in range(0, n, step)]
+    ctx = multiprocessing.get_context("fork")
+    with ctx.Pool(processes, initializer=_init_worker, initargs=(statements,)) as pool:
+        results = pool.map(_work_chunk, chunks, chunksize=1)
     index: dict[str, int] = {}
     shapes: list[str] = []
     out: list[int] = []

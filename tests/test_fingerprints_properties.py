@@ -134,3 +134,17 @@ def test_fingerprint_many_two_processes_equal_one_process():
     assert two.templates == one.templates
     assert two.literals == one.literals
     assert len(one.templates) == 7 + 3
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.sampled_from(DIALECTS),
+    st.lists(
+        st.one_of(st.lists(sql_alphabet, max_size=30).map("".join), filled("mysql")), max_size=8
+    ),
+)
+def test_fingerprint_many_ids_do_not_depend_on_with_literals(dialect, statements):
+    plain = fingerprint_many(statements, dialect, processes=1)
+    with_values = fingerprint_many(statements, dialect, with_literals=True, processes=1)
+    assert plain.ids == with_values.ids
+    assert plain.literals is None and len(with_values.literals) == len(statements)
