@@ -755,7 +755,22 @@ class _Sim:
 
     def loop(self, tpl: _T, arglists) -> None:
         """Run ``tpl`` once per argument tuple, back to back (what :meth:`q` does, in one call)."""
-        self.seq([(tpl, args) for args in arglists])
+        buf, load, t, append = self.bufs[tpl.n], self.load, self.t, self.out.append
+        head, log, comment, cache, ms3 = self.head, tpl.log, self.comment, self._sec_pg, _MS3
+        for args in arglists:
+            if not buf:
+                buf = self._refill(tpl)
+            d = int(buf.pop() * load) + 1
+            t += 50 + (d * 7919) % 120 + d
+            sec = t // 1_000_000
+            append(
+                (
+                    t,
+                    f"{cache.get(sec) or self._second(sec)}.{ms3[t // 1000 % 1000]}{head}"
+                    f"{d // 1000}.{ms3[d % 1000]}{_STATEMENT}{log % args}{comment}",
+                )
+            )
+        self.t = t
 
     def seq(self, items: list[tuple[_T, tuple]]) -> None:
         """Run several statements back to back (what :meth:`q` does, in one call)."""
