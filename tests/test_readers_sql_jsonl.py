@@ -231,3 +231,11 @@ def test_detect_among_all_statement_readers_picks_sql_jsonl(name: str) -> None:
     from attrib.readers import detect
 
     assert detect(_lines(FIXTURES / name)[:20], "statements", name) is sql_jsonl
+
+
+def test_read_mapped_sql_field_that_never_appears_names_the_mapping() -> None:
+    lines = _lines(FIXTURES / "002_custom_fields.log")
+    with pytest.raises(
+        MappingError, match="field 'nope' mapped to sql; fix --query-field sql=NAME"
+    ):
+        _read(lines, statement_fields={"sql": "nope"})

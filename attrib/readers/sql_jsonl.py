@@ -205,7 +205,7 @@ class _Plan:
 
     def missing_error(self) -> MappingError:
         ours, names = next(iter(self.unseen.items()))
-        if ours in ("sql", "time"):
+        if ours in ("sql", "time") and ours not in self.mapped:
             what = "SQL text" if ours == "sql" else "time"
             fix = "sql=NAME" if ours == "sql" else "timestamp=NAME (end time) or start=NAME"
             return MappingError(
