@@ -327,3 +327,25 @@ def test_detect_among_all_statement_readers_picks_mysql_slow(name: str) -> None:
     from attrib.readers import detect
 
     assert detect(_lines(FIXTURES / name)[:20], "statements", name) is mysql_slow
+
+
+def test_read_every_prefix_of_a_real_log_accounts_for_its_lines_and_keeps_whole_entries() -> None:
+    # Source: real MariaDB server output (fixture 002), cut after every line in turn.
+    lines = _lines(FIXTURES / "002_mariadb_time_changes.log")
+    full = {s.line: s for s in _statements(_read(lines))}
+    for cut in range(len(lines) + 1):
+        records = _read(lines[:cut])
+        assert sum(r.lines for r in records) == cut
+        for stmt in _statements(records):
+            assert stmt == full[stmt.line] or stmt.line + stmt.lines == cut + 1
+
+
+@pytest.mark.parametrize(
+    "junk", ["garbage", "", "# Time: not a time", "SET timestamp=1;", "# User@Host: x"]
+)
+def test_read_a_junk_line_anywhere_in_a_real_log_never_breaks_accounting(junk: str) -> None:
+    lines = _lines(FIXTURES / "002_mariadb_time_changes.log")
+    for at in range(len(lines) + 1):
+        spoiled = [*lines[:at], junk, *lines[at:]]
+        records = _read(spoiled)
+        assert sum(r.lines for r in records) == len(spoiled)
