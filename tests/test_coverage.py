@@ -14,15 +14,17 @@ from __future__ import annotations
 
 import pytest
 
-from attrib import coverage, ingest
+from attrib import coverage, ingest, store
 
 from .test_ingest import REQUESTS, STATEMENTS
 
 
-@pytest.fixture
-def cov(con):
+@pytest.fixture(scope="module")
+def cov():
+    con = store.connect(":memory:")  # ingested once for the module's tests, which only read
     ingest.ingest(con, [REQUESTS], [STATEMENTS])
-    return coverage.coverage(con)
+    yield coverage.coverage(con)
+    con.close()
 
 
 def metric(cov, name):

@@ -14,7 +14,7 @@ from types import SimpleNamespace
 import pytest
 
 from attrib import ingest, readers, store
-from attrib.errors import FormatError, InputError, TimezoneError
+from attrib.errors import FormatError, InputError, MappingError, TimezoneError
 from attrib.records import Statement
 
 from .conftest import FIXTURES
@@ -363,3 +363,17 @@ def test_comment_ids_agree_with_request_keys(sql):
 
     req, trace = ingest.comment_ids([sql, sql], "request_id")
     assert (req[0], trace[0]) == (req[1], trace[1]) == request_keys(sql, "request_id")
+
+
+def test_ingest_requests_after_their_statements_links_them_then(con):
+    first = ingest.ingest(con, queries=[STATEMENTS])
+    assert first.links_added == 0
+    second = ingest.ingest(con, [REQUESTS])
+    assert second.links_added == 6
+    assert con.execute("SELECT count(*) FROM links").fetchone()[0] == 6
+
+
+def test_ingest_mapping_error_from_a_reader_names_the_file(con):
+    options = ingest.IngestOptions(request_fields={"route": "no_such_field"})
+    with pytest.raises(MappingError, match=f"^{REQUESTS}: "):
+        ingest.ingest(con, [REQUESTS], options=options)
