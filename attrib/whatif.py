@@ -223,14 +223,32 @@ def _resample(x: np.ndarray, statistic, resamples: int, seed) -> np.ndarray:
 
 # --- SQL over the store -----------------------------------------------------------------------
 
-_LINKED = """
-    SELECT req.route, req.rs, req.rl, req.rq, s.template_id AS t, s.started_at,
-           coalesce(s.duration_ms, 0) AS d, s.rows, coalesce(s.param_hash, 0) AS ph,
-           s.source_id, s.line, s.seq
-    FROM req
-    JOIN links l ON l.req_source_id = req.rs AND l.req_line = req.rl AND l.req_seq = req.rq
-    JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
-"""
+
+def _per_template_sql(where: str) -> str:
+    """One row per (request, template): route, calls, their time, and repeats of a parameter set.
+
+    ``n_dup``/``d_dup`` (calls, and their time, whose parameter hash occurred earlier in the request)
+    are only filled for the templates in the ``?`` list (the cached ones). One pass, group-bys only.
+    """
+    return f"""
+    WITH {_req_cte(where)},
+    byp AS (
+        SELECT req.rs, req.rl, req.rq, any_value(req.route) AS route, s.template_id AS t,
+               CASE WHEN list_contains(?::VARCHAR[], s.template_id)
+                    THEN coalesce(s.param_hash, 0) END AS ph,
+               count(*) AS n, coalesce(sum(s.duration_ms), 0) AS d,
+               arg_min(coalesce(s.duration_ms, 0), (s.started_at, s.source_id, s.line, s.seq))
+                   AS d_first
+        FROM req
+        JOIN links l ON l.req_source_id = req.rs AND l.req_line = req.rl AND l.req_seq = req.rq
+        JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
+        GROUP BY req.rs, req.rl, req.rq, s.template_id, ph
+    )
+    SELECT rs, rl, rq, any_value(route) AS route, t, sum(n) AS n_all, sum(d) AS d_all,
+           CASE WHEN any_value(ph) IS NULL THEN 0 ELSE sum(n) - count(*) END AS n_dup,
+           CASE WHEN any_value(ph) IS NULL THEN 0 ELSE sum(d - d_first) END AS d_dup
+    FROM byp GROUP BY rs, rl, rq, t
+    """
 
 
 def _req_cte(where: str) -> str:
@@ -258,8 +276,6 @@ def _check_templates(con: duckdb.DuckDBPyConnection, scenario: Scenario) -> None
 def _savings_table(
     con: duckdb.DuckDBPyConnection,
     scenario: Scenario,
-    where: str,
-    params: list,
     since: datetime | None,
     until: datetime | None,
 ) -> pd.DataFrame:
@@ -290,24 +306,17 @@ def _savings_table(
         other = "redundant" if prefer == "n_plus_one" else "n_plus_one"
         return gap.get((route, t, prefer), gap.get((route, t, other), 0.0))
 
-    fits = nplus1.fixed_costs(con, list(scenario.batch), since=since, until=until)
-    fixed = {t: 0.0 if math.isnan(f.fixed_ms) else f.fixed_ms for t, f in fits.items()}
+    # find() fits the fixed cost of every loop's child; fit the batched templates it did not cover.
+    loops = findings[findings["kind"] == "n_plus_one"]
+    fixed = dict(zip(loops["child_template_id"], loops["fixed_cost_ms"], strict=True))
+    rest = [t for t in scenario.batch if t not in fixed]
+    fits = nplus1.fixed_costs(con, rest, since=since, until=until) if rest else {}
+    fixed |= {t: f.fixed_ms for t, f in fits.items()}
+    fixed = {t: 0.0 if pd.isna(f) else float(f) for t, f in fixed.items()}
     combos = con.execute(
-        f"""
-        WITH {_req_cte(where)},
-        lk AS ({_LINKED} WHERE s.template_id IN (SELECT unnest(?::VARCHAR[]))),
-        k AS (
-            SELECT route, rs, rl, rq, t,
-                   row_number() OVER (PARTITION BY rs, rl, rq, t, ph ORDER BY started_at, source_id, line, seq) AS k
-            FROM lk
-        ),
-        per AS (
-            SELECT route, t, count(*) AS n_all, count(*) FILTER (WHERE k > 1) AS n_dup
-            FROM k GROUP BY route, rs, rl, rq, t
-        )
-        SELECT DISTINCT route, t, n_all, n_dup FROM per WHERE n_all > 1
-        """,
-        [*params, looped],
+        "SELECT DISTINCT route, t, n_all, n_dup FROM _whatif_pert"
+        " WHERE t IN (SELECT unnest(?::VARCHAR[])) AND n_all > 1",
+        [looped],
     ).fetchall()
     rows = {}
     for route, t, n_all, n_dup in combos:
@@ -330,26 +339,14 @@ def _per_request_sql(where: str) -> str:
     """One row per request: elapsed, db time, the scenario's savings and its Amdahl portion."""
     return f"""
     WITH {_req_cte(where)},
-    lk AS ({_LINKED}),
     tot AS (
         SELECT req.rs, req.rl, req.rq, any_value(req.route) AS route,
                any_value(req.started_at) AS started_at, any_value(req.elapsed_ms) AS elapsed_ms,
-               count(s.template_id) AS queries, coalesce(sum(s.duration_ms), 0) AS db_ms
-        FROM req
-        LEFT JOIN links l ON l.req_source_id = req.rs AND l.req_line = req.rl AND l.req_seq = req.rq
-        LEFT JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
+               coalesce(sum(p.n_all), 0) AS queries, coalesce(sum(p.d_all), 0) AS db_ms
+        FROM req LEFT JOIN _whatif_pert p USING (rs, rl, rq)
         GROUP BY req.rs, req.rl, req.rq
     ),
-    k AS (
-        SELECT lk.*, row_number() OVER (
-            PARTITION BY rs, rl, rq, t, ph ORDER BY started_at, source_id, line, seq) AS k
-        FROM lk WHERE t IN (SELECT t FROM _whatif_scenario)
-    ),
-    per AS (
-        SELECT route, rs, rl, rq, t, count(*) AS n_all, sum(d) AS d_all,
-               count(*) FILTER (WHERE k > 1) AS n_dup, coalesce(sum(d) FILTER (WHERE k > 1), 0) AS d_dup
-        FROM k GROUP BY ALL
-    ),
+    per AS (SELECT * FROM _whatif_pert WHERE t IN (SELECT t FROM _whatif_scenario)),
     step1 AS (  -- remove, then cache
         SELECT per.*, sc.removed, sc.cached, sc.batched, sc.factor,
                CASE WHEN sc.removed THEN d_all WHEN sc.cached THEN d_dup ELSE 0 END AS db1,
@@ -445,7 +442,28 @@ def whatif(
     """
     _check_templates(con, scenario)
     where, params = request_filter("r", since=since, until=until)
-    savings = _savings_table(con, scenario, where, params, since, until)
+    con.execute(
+        f"CREATE OR REPLACE TEMP TABLE _whatif_pert AS {_per_template_sql(where)}",
+        [*params, list(scenario.cache)],
+    )
+    try:
+        return _project(con, scenario, where, params, since, until, resamples, seed, bootstrap_cap)
+    finally:
+        con.execute("DROP TABLE IF EXISTS _whatif_pert")
+
+
+def _project(
+    con: duckdb.DuckDBPyConnection,
+    scenario: Scenario,
+    where: str,
+    params: list,
+    since: datetime | None,
+    until: datetime | None,
+    resamples: int,
+    seed: int,
+    cap: int,
+) -> pd.DataFrame:
+    savings = _savings_table(con, scenario, since, until)
     scn = pd.DataFrame(
         {
             "t": scenario.templates,
@@ -462,7 +480,7 @@ def whatif(
         con.execute(
             f"CREATE OR REPLACE TEMP TABLE _whatif_requests AS {_per_request_sql(where)}", params
         )
-        return _summarise(con, resamples, seed, bootstrap_cap)
+        return _summarise(con, resamples, seed, cap)
     finally:
         con.execute("DROP TABLE IF EXISTS _whatif_requests")
         con.unregister("_whatif_scenario")

@@ -248,8 +248,12 @@ def test_whatif_remove_then_overall_row_covers_every_route(huts):
 
 
 def test_whatif_cache_drops_repeats_with_the_same_parameters(con):
-    # Each request reads `price` four times: parameter hashes 1, 1, 1, 2 (3 ms each, 2 ms apart).
-    stmts = [("price", 2.0 + 5.0 * k, 3.0, 1, ph) for k, ph in enumerate([1, 1, 1, 2])]
+    # Each request reads `price` four times, 5 ms apart from start to start: parameter hashes
+    # 1, 1, 1, 2 lasting 4, 2, 1 and 3 ms.
+    stmts = [
+        ("price", 2.0 + 5.0 * k, d, 1, ph)
+        for k, (ph, d) in enumerate([(1, 4.0), (1, 2.0), (1, 1.0), (2, 3.0)])
+    ]
     fill_store(
         con,
         [
@@ -263,10 +267,12 @@ def test_whatif_cache_drops_repeats_with_the_same_parameters(con):
         ],
     )
     r = _row(whatif(con, Scenario(cache=("price",)), resamples=50), "/cart")
-    # Two calls repeat an earlier parameter: 6 ms of db time and 2 gaps of 2 ms go.
-    assert r["db_ms_per_request_before"] == pytest.approx(12.0)
-    assert r["db_ms_per_request_after"] == pytest.approx(6.0)
-    assert r["elapsed_p50_after"] == pytest.approx(50.0 - 6.0 - 4.0)
+    # The 2nd and 3rd calls repeat the first one's parameters: their 2 + 1 ms go, the first call's
+    # 4 ms stay. Gaps between consecutive calls: 7 - 6, 12 - 9, 17 - 13 = 1, 3, 4 ms, mean 8/3
+    # (the figure attrib nplus1 reports); two dropped calls remove 2 * 8/3 ms of round trips.
+    assert r["db_ms_per_request_before"] == pytest.approx(10.0)
+    assert r["db_ms_per_request_after"] == pytest.approx(7.0)
+    assert r["elapsed_p50_after"] == pytest.approx(50.0 - 3.0 - 16 / 3)
 
 
 def test_whatif_cache_then_batch_applies_in_documented_order(huts):
