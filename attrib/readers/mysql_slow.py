@@ -312,7 +312,11 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
     [('SELECT 1', '7', 1, 1709647331000000)]
     """
     reader = _Reader(options)
+    header = reader.header
     entry: _Entry | None = None
+    number = 0
+    # An entry's line count is taken from the line numbers (consecutive, per the reader contract):
+    # the number of the first line after it minus its first line.
     for number, text in lines:
         if entry is not None:
             if entry.sql is None:
@@ -322,26 +326,21 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
                     if tag == "Time:" or (tag == "User@" and entry.user is not None):
                         pass  # the next entry starts: this one has no statement
                     elif tag != "admin" or not text.startswith(_ADMIN):
-                        entry.count += 1
-                        reader.header(entry, text)
+                        header(entry, text)
                         continue
                     else:
-                        entry.count += 1
                         entry.sql = [text]
                         continue
                 elif text[:4] == "SET " and entry.set_ts is None and (ts := _set_timestamp(text)):
-                    entry.count += 1
                     entry.set_ts = ts
                     continue
                 elif text[:4] == "use " and entry.set_ts is None and (m := _USE.match(text)):
-                    entry.count += 1
                     entry.use = m.group(1).strip("`")
                     reader.last_use = entry.use
                     continue
                 elif ", Version: " in text and _BANNER.match(text):
                     pass
                 else:
-                    entry.count += 1
                     entry.sql = [text]
                     continue
             elif not (
@@ -349,16 +348,15 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
                 or (", Version: " in text and _BANNER.match(text))
             ):
                 # Statement text: runs until the next header or banner.
-                entry.count += 1
                 entry.sql.append(text)
                 continue
+            entry.count = number - entry.first
             yield from reader.finish(entry, at_eof=False)
             entry = None
         # Between entries.
         if text[:2] == "# " and text.startswith(_STARTS):
             entry = _Entry(number)
-            entry.count = 1
-            reader.header(entry, text)
+            header(entry, text)
         elif _BANNER.match(text):
             reader.last_use = None  # the writer forgets the last `use` when it reopens the file
             yield Skip(number, "server")
@@ -369,6 +367,7 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
         else:
             yield Reject(number, "not part of a slow-log entry", text[:200])
     if entry is not None:
+        entry.count = number + 1 - entry.first
         yield from reader.finish(entry, at_eof=True)
 
 
