@@ -354,17 +354,11 @@ def change_intervals(
     rng = np.random.default_rng(seed)
     dists = []
     for side in (before[:cap], after[:cap]):
+        q, d, e = (np.ascontiguousarray(side[:, i], dtype=float) for i in range(3))
         parts = []
         for idx in bootstrap_blocks(len(side), resamples, rng):
-            s = side[idx]  # (b, n, 3)
             parts.append(
-                np.vstack(
-                    [
-                        s[:, :, 0].mean(axis=1),
-                        s[:, :, 1].mean(axis=1),
-                        np.median(s[:, :, 2], axis=1),
-                    ]
-                )
+                np.vstack([q[idx].mean(axis=1), d[idx].mean(axis=1), np.median(e[idx], axis=1)])
             )
         dists.append(np.concatenate(parts, axis=1))
     diff = dists[1] - dists[0]
