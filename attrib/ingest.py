@@ -319,6 +319,10 @@ def ingest(
         An :class:`IngestResult`; ``.summary()`` gives one row per file.
     """
     options = options or IngestOptions()
+    if isinstance(requests, str | os.PathLike):  # one file given on its own
+        requests = [requests]
+    if isinstance(queries, str | os.PathLike):
+        queries = [queries]
     plan = [(p, "requests", options.requests_format) for p in sources.expand(requests)]
     plan += [(p, "statements", options.queries_format) for p in sources.expand(queries)]
     for _path, kind, fmt in plan:  # unknown or misplaced formats fail before anything is read

@@ -377,3 +377,13 @@ def test_ingest_mapping_error_from_a_reader_names_the_file(con):
     options = ingest.IngestOptions(request_fields={"route": "no_such_field"})
     with pytest.raises(MappingError, match=f"^{REQUESTS}: "):
         ingest.ingest(con, [REQUESTS], options=options)
+
+
+def test_store_ingest_accepts_a_single_path_and_option_keywords(tmp_path):
+    from attrib import api
+
+    with api.open(tmp_path / "s.duckdb") as s:
+        result = s.ingest(requests=str(REQUESTS), queries=STATEMENTS, keep_raw=True)
+        assert [f.status for f in result.files] == ["ingested", "ingested"]
+        assert s.con.execute("SELECT count(raw_sql) FROM statements").fetchone()[0] == 9
+        assert s.coverage().summary["value"][0] == 9
