@@ -156,16 +156,22 @@ class Store:
 
     def whatif(
         self,
-        scenario: Any,
+        scenario: Any = None,
         *,
         since: datetime | None = None,
         until: datetime | None = None,
         resamples: int = 1000,
         seed: int = 0,
+        **changes: Any,
     ) -> pd.DataFrame:
-        """Projected per-route figures under a scenario; see :func:`attrib.whatif.whatif`."""
+        """Projected per-route figures under a scenario; see :func:`attrib.whatif.whatif`.
+
+        ``scenario`` is an :class:`attrib.whatif.Scenario`, or give the changes as CLI-style lists:
+        ``s.whatif(batch=["3f2a9c1e0b7d4a55"], faster=["9b0e77aa01c3d2f4=3x"])``.
+        """
         from attrib import whatif
 
+        scenario = scenario or whatif.Scenario.parse(**changes)
         return whatif.whatif(
             self.con, scenario, since=since, until=until, resamples=resamples, seed=seed
         )

@@ -22,7 +22,7 @@ from scipy import stats as _scipy_stats
 from attrib.attribute import request_filter
 from attrib.errors import UsageError
 from attrib.whatif import BOOTSTRAP_CAP, bootstrap_blocks
-from attrib.windows import Window, zone
+from attrib.windows import Window, parse_window, zone
 
 CORRECTIONS = ("holm", "bh")
 #: Warn when the request rate of one side is more than this many times the other's (common practice,
@@ -226,8 +226,8 @@ def compare(
     con_before: duckdb.DuckDBPyConnection,
     con_after: duckdb.DuckDBPyConnection | None = None,
     *,
-    before: Window | None = None,
-    after: Window | None = None,
+    before: Window | str | None = None,
+    after: Window | str | None = None,
     alpha: float = 0.05,
     correction: str = "holm",
     resamples: int = 1000,
@@ -240,16 +240,21 @@ def compare(
     Args:
         con_before: the store of the "before" side.
         con_after: the store of the "after" side (default: ``con_before``).
-        before, after: the two windows (None = the whole store; both needed with one store).
+        before, after: the two windows, as :class:`attrib.windows.Window` or ``START/END`` text in
+            ``tz`` (None = the whole store; both needed with one store).
         alpha: significance level for the verdicts, applied to corrected p-values.
         correction: ``"holm"`` (family-wise error rate) or ``"bh"`` (false discovery rate).
         resamples, seed: bootstrap settings for the confidence intervals of the changes.
-        tz: zone used to name weekdays when a side has no window.
+        tz: zone of windows given as text, and of the weekdays named when a side has no window.
         bootstrap_cap: per route and side, bootstrap a deterministic subsample of this many requests.
 
     Returns:
         A :class:`Comparison` (columns :data:`ROUTE_COLUMNS` and :data:`TEMPLATE_COLUMNS`).
     """
+    if isinstance(before, str):
+        before = parse_window(before, tz)
+    if isinstance(after, str):
+        after = parse_window(after, tz)
     if con_after is None:
         con_after = con_before
         if before is None or after is None:

@@ -202,3 +202,21 @@ def test_traffic_warnings_flag_volume_mix_and_weekday():
     assert "traffic differs" in text and "3.0x" in text
     assert "route mix differs" in text
     assert "Monday before, Tuesday after" in text
+
+
+def test_store_compare_accepts_window_text_in_a_zone(tmp_path):
+    import attrib
+
+    with attrib.open(tmp_path / "s.duckdb") as s:
+        fill_store(s.con, _week(MONDAY, batched=False) + _week(NEXT_MONDAY, batched=True))
+        result = s.compare(
+            "2026-11-23T09:00/2026-11-23T10:00",
+            "2026-11-30T09:00/2026-11-30T10:00",
+            tz="Europe/Zurich",
+            resamples=20,
+        )
+        projected = s.whatif(batch=["bunk"], resamples=20)
+    r = result.routes.set_index("route")
+    assert r.loc["/huts/{id}/bunks", "queries_verdict"] == "fewer"
+    assert r.loc["/huts/{id}/bunks", "requests_before"] == 30
+    assert projected["route"].iloc[0] == "/huts/{id}/bunks"
