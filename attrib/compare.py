@@ -156,14 +156,18 @@ def mann_whitney(before: np.ndarray, after: np.ndarray) -> tuple[float, float]:
     return float(res.pvalue), int(np.sign(res.statistic - centre))
 
 
-def verdict(p_adjusted: float, direction: int, alpha: float, words: tuple[str, str, str]) -> str:
+def verdict(
+    p_adjusted: float, direction: int, alpha: float, words: tuple[str, str, str]
+) -> str | None:
     """``words`` = (lower after, unchanged, higher after); significant when p_adjusted <= alpha.
+
+    None when there is no p-value (the route has requests on one side only).
 
     >>> verdict(0.001, 1, 0.05, ("fewer", "unchanged", "more"))
     'fewer'
     """
     if p_adjusted != p_adjusted:  # NaN: one side has no requests
-        return ""
+        return None
     if p_adjusted <= alpha and direction != 0:
         return words[0] if direction > 0 else words[2]
     return words[1]

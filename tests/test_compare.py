@@ -220,3 +220,18 @@ def test_store_compare_accepts_window_text_in_a_zone(tmp_path):
     assert r.loc["/huts/{id}/bunks", "queries_verdict"] == "fewer"
     assert r.loc["/huts/{id}/bunks", "requests_before"] == 30
     assert projected["route"].iloc[0] == "/huts/{id}/bunks"
+
+
+def test_compare_route_on_one_side_only_has_no_verdict(con):
+    later = _week(NEXT_MONDAY, batched=True, n=5)
+    later.append({"route": "/trails/{id}", "start": NEXT_MONDAY, "elapsed": 9.0, "statements": []})
+    fill_store(con, _week(MONDAY, batched=False, n=5) + later)
+    before, after = _windows()
+    r = compare(con, before=before, after=after, resamples=20).routes.set_index("route")
+    trail = r.loc["/trails/{id}"]
+    assert (trail["requests_before"], trail["requests_after"]) == (0, 1)
+    assert pd.isna(trail["queries_verdict"]) and pd.isna(trail["elapsed_verdict"])
+    assert np.isnan(trail["p_value"]) and np.isnan(trail["queries_change"])
+    # The correction counts only the two routes that were tested (m = 2, not 3).
+    tested = ["/huts", "/huts/{id}/bunks"]
+    np.testing.assert_allclose(r.loc[tested, "p_adjusted"], holm(r.loc[tested, "p_value"]))
