@@ -201,6 +201,10 @@ SESSION = _t(
 )
 SETTING = _t("SELECT value FROM settings WHERE key = '%s'", 0.035, 0.3)
 HEALTH = _t("SELECT 1", 0.015, 0.3, 0.0)
+FLAG = _t("SELECT enabled, rollout_pct FROM feature_flags WHERE name = '%s'", 0.03, 0.3)
+PAGE_VIEW = _t(
+    "INSERT INTO page_views (route, status, viewed_at) VALUES ('%s', %d, now())", 0.12, 0.5, 0.003
+)
 BEGIN = _t("BEGIN", 0.012, 0.3, 0.0)
 COMMIT = _t("COMMIT", 0.9, 0.6, 0.004)
 ROLLBACK = _t("ROLLBACK", 0.02, 0.3, 0.0)
@@ -1418,9 +1422,9 @@ def _availability(s: _Sim):
 # (method, route, weight, non-database time median ms, its sigma, handler)
 ROUTES: tuple[tuple[str, str, float, float, float, Callable], ...] = (
     ("GET", "/api/availability", 10.0, 2.5, 0.4, _availability),
-    ("GET", "/huts", 12.0, 9.0, 0.4, _huts),
-    ("GET", "/huts/{id}", 12.0, 12.0, 0.45, _hut),
-    ("GET", "/huts/{id}/bunks", 8.0, 6.0, 0.4, _hut_bunks),
+    ("GET", "/huts", 18.0, 9.0, 0.4, _huts),
+    ("GET", "/huts/{id}", 13.0, 12.0, 0.45, _hut),
+    ("GET", "/huts/{id}/bunks", 11.0, 6.0, 0.4, _hut_bunks),
     ("GET", "/huts/{id}/reviews", 5.0, 7.0, 0.4, _hut_reviews),
     ("GET", "/huts/{id}/photos", 3.0, 5.0, 0.4, _hut_photos),
     ("GET", "/huts/{id}/gear", 2.0, 4.0, 0.4, _hut_gear),
@@ -1449,7 +1453,7 @@ ROUTES: tuple[tuple[str, str, float, float, float, Callable], ...] = (
     ("GET", "/gear-rentals/{id}", 0.4, 4.0, 0.4, _rental),
     ("GET", "/admin/reports/occupancy", 0.15, 30.0, 0.4, _occupancy),
     ("GET", "/admin/guests", 0.2, 12.0, 0.4, _admin_guests),
-    ("GET", "/healthz", 3.0, 0.4, 0.3, _healthz),
+    ("GET", "/healthz", 2.0, 0.4, 0.3, _healthz),
 )
 
 _JOBS = ("expire_holds", "promote_waitlist", "refresh_ratings", "prune_sessions", "import_weather")
@@ -1611,7 +1615,12 @@ def generate(
             s.head = f" UTC [{pid}] {_PG_USER} LOG:  duration: "
             s.load = 0.8 + 0.4 * loads_l[i]
             s.comment = " " + comments[k].format(i + 1)
-            path, status = handler(s)
+            if handler is not _healthz:  # middleware: a feature flag before, a page view after
+                s.q(FLAG, "bunk_map_v2")
+                path, status = handler(s)
+                s.q(PAGE_VIEW, route, status)
+            else:
+                path, status = handler(s)
             heapq.heappush(pool, (s.t + 50, slot, pid, port, since))
             t_end = s.t + int(0.7 * nondb) + 200
             elapsed = t_end - t0

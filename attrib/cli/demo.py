@@ -27,7 +27,7 @@ from attrib.demo import format_summary, run
     default=30_000,
     show_default=True,
     type=click.IntRange(min=1),
-    help="Web requests to simulate (about 12 statements each).",
+    help="Web requests to simulate (about 16 statements each).",
 )
 @format_option
 def demo_cmd(out_dir: str, seed: int, n_requests: int, fmt: str) -> None:
