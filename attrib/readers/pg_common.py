@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import re
 from collections import deque
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from datetime import datetime
 from zoneinfo import ZoneInfo
 
@@ -71,8 +71,14 @@ FIXED_ZONES = {
 _NUMERIC_ZONE = re.compile(r"([+-])(\d\d)(?::?(\d\d))?\Z")
 _EPOCH = datetime(1970, 1, 1)
 
-_DURATION = re.compile(r"duration: (\d+(?:\.\d+)?) ms(?:  (.*))?\Z", re.S)
-_STEP = re.compile(r"(statement|parse|bind|execute fetch from|execute)(?: (\S*?))?: (.*)\Z", re.S)
+# "duration: X ms", optionally followed by a protocol step and its text, or by something else
+_TIMED = re.compile(
+    r"duration: (\d+(?:\.\d+)?) ms"
+    r"(?:  (?:(statement|parse|bind|execute fetch from|execute)(?: \S*?)?: (.*)|(.*)))?\Z",
+    re.S,
+)
+_LOGGED = re.compile(r"(statement|execute)(?: \S*?)?: (.*)\Z", re.S)
+_NONE: tuple[Record, ...] = ()
 _PARAM = re.compile(r"\$\d+ = (?:'((?:[^']|'')*)'|(NULL))")
 _CATEGORIES = (
     (
@@ -287,7 +293,7 @@ class _Slot:
 class _Group:
     """A statement being assembled in one session: protocol steps and/or a logged text."""
 
-    __slots__ = ("slot", "start_us", "duration_ms", "timed", "sql", "params", "entry", "waiting")
+    __slots__ = ("slot", "start_us", "duration_ms", "timed", "sql", "detail", "entry", "waiting")
 
     def __init__(self, slot: _Slot, start_us: int, entry: Entry) -> None:
         self.slot = slot
@@ -295,7 +301,7 @@ class _Group:
         self.duration_ms = 0.0
         self.timed = False
         self.sql: str | None = None
-        self.params: tuple[str, ...] | None = None
+        self.detail: str | None = None  # the last parameters detail of a step
         self.entry = entry
         self.waiting = False  # True once the text is known and only its duration is missing
 
@@ -315,20 +321,24 @@ class Assembler:
 
     # The output queue: a slot per record, flushed from the left when done.
 
-    def _ready(self) -> list[Record]:
+    def _ready(self) -> Sequence[Record]:
         out = self._out
+        if not out:
+            return _NONE
+        if not out[0].done:
+            if len(out) > self.MAX_HELD:
+                self._close(out[0].owner)
+                return self._ready()
+            return _NONE
         ready: list[Record] = []
         while out and out[0].done:
             slot = out.popleft()
             if slot.record is not None:
                 slot.record.lines = slot.lines
                 ready.append(slot.record)
-        if len(out) > self.MAX_HELD:
-            self._close(out[0].owner)
-            ready.extend(self._ready())
         return ready
 
-    def _emit(self, record: Record, lines: int) -> list[Record]:
+    def _emit(self, record: Record, lines: int) -> Sequence[Record]:
         if not self._out:
             record.lines = lines
             return [record]
@@ -337,15 +347,15 @@ class Assembler:
         self._out.append(slot)
         return []
 
-    def skip(self, line: int, category: str, lines: int = 1) -> list[Record]:
+    def skip(self, line: int, category: str, lines: int = 1) -> Sequence[Record]:
         """A valid line (or lines) that is no statement."""
         return self._emit(Skip(line, category), lines)
 
-    def reject(self, line: int, reason: str, excerpt: str = "", lines: int = 1) -> list[Record]:
+    def reject(self, line: int, reason: str, excerpt: str = "", lines: int = 1) -> Sequence[Record]:
         """Lines that could not be read."""
         return self._emit(Reject(line, reason, excerpt[:200]), lines)
 
-    def finish(self) -> list[Record]:
+    def finish(self) -> Sequence[Record]:
         """Close every open statement (end of file) and return what remains."""
         for session in list(self._groups):
             self._close(session)
@@ -353,27 +363,26 @@ class Assembler:
 
     # Entries.
 
-    def feed(self, e: Entry) -> list[Record]:
+    def feed(self, e: Entry) -> Sequence[Record]:
         """Process one message; return the records that are complete and next in file order."""
         sev = e.severity
         message = e.message
         if sev == "LOG":
-            match = _DURATION.match(message)
+            match = _TIMED.match(message)
             if match is not None:
                 duration = float(match.group(1))
-                rest = match.group(2)
-                if rest is None:
+                kind, sql, other = match.group(2, 3, 4)
+                if kind is not None:
+                    return self._timed_step(e, duration, kind, sql)
+                if other is None:
                     return self._bare_duration(e, duration)
-                step = _STEP.match(rest)
-                if step is None:
-                    if rest.startswith("plan:"):
-                        return self.skip(e.line, "auto_explain", e.lines)
-                    return self.reject(e.line, "unrecognised duration message", message, e.lines)
-                return self._timed_step(e, duration, step.group(1), step.group(3))
+                if other.startswith("plan:"):
+                    return self.skip(e.line, "auto_explain", e.lines)
+                return self.reject(e.line, "unrecognised duration message", message, e.lines)
             if message.startswith(("statement: ", "execute ")):
-                step = _STEP.match(message)
-                if step is not None and step.group(1) in ("statement", "execute"):
-                    return self._logged_text(e, step.group(3))
+                step = _LOGGED.match(message)
+                if step is not None:
+                    return self._logged_text(e, step.group(2))
             if message.startswith("duration:"):
                 return self.reject(e.line, "incomplete duration message", message, e.lines)
             if message.startswith("disconnection:"):
@@ -395,7 +404,7 @@ class Assembler:
             database=e.database,
         )
 
-    def _timed_step(self, e: Entry, duration: float, kind: str, sql: str) -> list[Record]:
+    def _timed_step(self, e: Entry, duration: float, kind: str, sql: str) -> Sequence[Record]:
         start = e.time_us - round(duration * 1000)
         if kind == "statement":
             self._close(e.session)
@@ -413,14 +422,13 @@ class Assembler:
         group.sql = sql
         group.duration_ms += duration
         group.timed = True
-        params = parse_params(e.detail)
-        if params is not None:
-            group.params = params
+        if e.detail is not None:
+            group.detail = e.detail
         if kind == "execute":
             self._finish_group(e.session, group, group.duration_ms, None)
         return self._ready()
 
-    def _bare_duration(self, e: Entry, duration: float) -> list[Record]:
+    def _bare_duration(self, e: Entry, duration: float) -> Sequence[Record]:
         group = self._groups.get(e.session)
         if group is None:
             group = self._open(e, e.time_us - round(duration * 1000))
@@ -432,7 +440,7 @@ class Assembler:
             self._finish_group(e.session, group, group.duration_ms, None)
         return self._ready()
 
-    def _logged_text(self, e: Entry, sql: str) -> list[Record]:
+    def _logged_text(self, e: Entry, sql: str) -> Sequence[Record]:
         group = self._groups.get(e.session)
         if group is not None and (group.waiting or group.sql not in (None, sql)):
             self._close(e.session)
@@ -444,12 +452,11 @@ class Assembler:
         group.sql = sql
         group.entry = e
         group.waiting = True
-        params = parse_params(e.detail)
-        if params is not None:
-            group.params = params
+        if e.detail is not None:
+            group.detail = e.detail
         return self._ready()
 
-    def _failed(self, e: Entry) -> list[Record]:
+    def _failed(self, e: Entry) -> Sequence[Record]:
         error = e.sqlstate if e.sqlstate and e.sqlstate != "00000" else "ERROR"
         group = self._groups.get(e.session)
         if group is not None and group.sql == e.query:
@@ -476,7 +483,7 @@ class Assembler:
         del self._groups[session]
         statement = self._statement(group.entry, group.start_us, duration, group.sql or "")
         statement.line = group.slot.line
-        statement.params = group.params
+        statement.params = parse_params(group.detail)
         statement.error = error
         group.slot.record = statement
         group.slot.done = True
