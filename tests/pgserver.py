@@ -2,7 +2,7 @@
 
 Usage::
 
-    with PgServer() as server:            # initdb + start
+    with PgServer() as server:            # copy an initdb'd directory, start
         run_something(server.conninfo)
         logs = server.stop()              # pg_ctl stop -m fast; logs.stderr / .csvlog / .jsonlog
         read(logs.stderr)
@@ -111,7 +111,11 @@ class PgServer:
     # -- lifecycle -----------------------------------------------------------------------------
 
     def __enter__(self) -> PgServer:
-        self.start()
+        try:
+            self.start()
+        except BaseException:
+            self.cleanup()
+            raise
         return self
 
     def __exit__(self, *exc: object) -> None:
