@@ -648,6 +648,9 @@ _GRADES = ("T1", "T2", "T3", "T4", "T5")
 _WEATHER = ("Clear, light wind", "Snow showers, gusty", "Foehn, warm", "Low cloud, drizzle")
 
 
+_STEPS = (7, 11, 13, 17, 19, 23, 29, 31, 37, 41, 43, 47)  # prime to N_HUTS: n < N_HUTS steps differ
+
+
 def _guest_name(gid: int) -> str:
     return f"{_FIRST[gid * 7 % len(_FIRST)]} {_LAST[gid * 13 % len(_LAST)]}"
 
@@ -870,8 +873,8 @@ class _Sim:
         huts = self._trips.get(gid)
         if huts is None:
             n = min(int(-math.log(1.0 - self.r.u()) * 4.0), 24)
-            first, step = self.r.i(1, N_HUTS + 1), 7 + 2 * self.r.i(0, 20)
-            huts = [(first - 1 + k * step) % N_HUTS + 1 for k in range(n)]  # step is odd: distinct
+            first, step = self.r.i(1, N_HUTS + 1), self.r.pick(_STEPS)
+            huts = [(first - 1 + k * step) % N_HUTS + 1 for k in range(n)]
             self._trips[gid] = huts
         return huts
 

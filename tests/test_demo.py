@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import json
 import re
-from collections import Counter, defaultdict
+from collections import defaultdict
 from pathlib import Path
 
 import pandas as pd
@@ -107,25 +107,35 @@ def test_generate_requests_are_json_lines_with_utc_times(tmp_path: Path) -> None
 
 def test_generate_only_planted_templates_repeat_within_a_request(tmp_path: Path) -> None:
     # The truth must be the whole truth: outside the planted patterns no statement shape runs twice
-    # in one request. Shapes here are a crude literal mask, independent of attrib's fingerprints.
+    # in one request; a planted loop sends other values on every call, a planted repeat the same
+    # ones. Shapes here are a crude literal mask, independent of attrib's fingerprints.
     t = demo.generate(tmp_path, seed=5, requests=1_000)
     mask = re.compile(r"'(?:[^']|'')*'|\b\d+(?:\.\d+)?\b")
+
+    def shape(sql: str) -> str:
+        return re.sub(r"\?(, \?)+", "?", mask.sub("?", sql))
+
     tagged = re.compile(r"statement: (.*) /\*request_id='([^']+)',route='([^']+)'\*/$")
-    calls: dict[str, Counter] = defaultdict(Counter)
+    calls: dict[str, dict[str, list[str]]] = defaultdict(lambda: defaultdict(list))
     routes = {}
     for line in t.queries_path.read_text().splitlines():
         m = tagged.search(line)
         if m:
             sql, rid, _route = m.groups()
-            calls[rid][re.sub(r"\?(, \?)+", "?", mask.sub("?", sql))] += 1
+            calls[rid][shape(sql)].append(sql)
     for line in t.requests_path.read_text().splitlines():
         row = json.loads(line)
         routes[row["request_id"]] = row["route"]
-    repeated = {
-        (routes[rid], shape) for rid, c in calls.items() for shape, n in c.items() if n >= 2
-    }
-    planted = {(p.route, re.sub(r"\?(, \?)+", "?", mask.sub("?", p.child_sql))) for p in t.planted}
-    assert repeated == planted
+    kinds = {(p.route, shape(p.child_sql)): p.kind for p in t.planted}
+    repeated = set()
+    for rid, by_shape in calls.items():
+        for sh, texts in by_shape.items():
+            if len(texts) >= 2:
+                key = (routes[rid], sh)
+                repeated.add(key)
+                distinct = len(set(texts))
+                assert distinct == (len(texts) if kinds.get(key) == "n_plus_one" else 1), key
+    assert repeated == set(kinds)
 
 
 def test_generate_files_read_without_rejects(demo_run) -> None:
