@@ -391,13 +391,15 @@ class Assembler:
             return self._failed(e)
         return self.skip(e.line, skip_category(sev, message), e.lines)
 
-    def _statement(self, e: Entry, start_us: int, duration: float | None, sql: str) -> Statement:
+    def _statement(
+        self, e: Entry, start_us: int, duration: float | None, sql: str, params: str | None
+    ) -> Statement:
         return Statement(
             line=e.line,
             start_us=start_us,
             duration_ms=duration,
             sql=sql,
-            params=parse_params(e.detail),
+            params=parse_params(params),
             request_id=e.request_id,
             session=e.label,
             user=e.user,
@@ -408,7 +410,7 @@ class Assembler:
         start = e.time_us - round(duration * 1000)
         if kind == "statement":
             self._close(e.session)
-            return self._emit(self._statement(e, start, duration, sql), e.lines)
+            return self._emit(self._statement(e, start, duration, sql, e.detail), e.lines)
         if kind == "execute fetch from":
             return self.skip(e.line, "fetch", e.lines)
         group = self._groups.get(e.session)
@@ -465,8 +467,7 @@ class Assembler:
             return self._ready()
         if group is not None and group.waiting:
             self._close(e.session)
-        statement = self._statement(e, e.time_us, None, e.query or "")
-        statement.params = None
+        statement = self._statement(e, e.time_us, None, e.query or "", None)
         statement.error = error
         return self._emit(statement, e.lines)
 
@@ -481,9 +482,10 @@ class Assembler:
         self, session: str, group: _Group, duration: float | None, error: str | None
     ) -> None:
         del self._groups[session]
-        statement = self._statement(group.entry, group.start_us, duration, group.sql or "")
+        statement = self._statement(
+            group.entry, group.start_us, duration, group.sql or "", group.detail
+        )
         statement.line = group.slot.line
-        statement.params = parse_params(group.detail)
         statement.error = error
         group.slot.record = statement
         group.slot.done = True

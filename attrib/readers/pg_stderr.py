@@ -149,48 +149,55 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
     ) + ("severity", "sqlstate" if "sqlstate" in groups else "none", "message")
 
     asm = Assembler()
+    feed = asm.feed
     held: Entry | None = None  # primary message waiting for its DETAIL/STATEMENT lines
     current: Entry | None = None  # message being read (continuation lines may follow)
-    parts: list[str] = []
+    parts: list[str] | None = None  # its lines, once it has a continuation line
 
-    def complete(entry: Entry) -> list[Record]:
-        """A whole message is known: attach it to the held primary or make it the held one."""
+    def attach(entry: Entry) -> list[Record]:
+        """A DETAIL/STATEMENT/... part: add it to the held primary of the same session."""
         nonlocal held
-        entry.message = parts[0] if len(parts) == 1 else "\n".join(parts)
         out: list[Record] = []
-        if entry.severity in SECONDARY:
-            if held is not None and held.session == entry.session:
-                held.lines += entry.lines
-                if entry.severity == "DETAIL" and held.detail is None:
-                    held.detail = entry.message
-                elif entry.severity == "STATEMENT":
-                    held.query = entry.message
-                return out
-            if held is not None:
-                out += asm.feed(held)
-                held = None
-            out += asm.skip(entry.line, "detail", entry.lines)
+        if held is not None and held.session == entry.session:
+            held.lines += entry.lines
+            if entry.severity == "DETAIL" and held.detail is None:
+                held.detail = entry.message
+            elif entry.severity == "STATEMENT":
+                held.query = entry.message
             return out
         if held is not None:
-            out += asm.feed(held)
-        held = entry
+            out += feed(held)
+            held = None
+        out += asm.skip(entry.line, "detail", entry.lines)
         return out
 
     for number, text in lines:
-        if text.startswith("\t"):
+        if text[:1] == "\t":
             if current is None:
                 yield from asm.reject(number, "continuation line without a message before it", text)
             else:
+                if parts is None:
+                    parts = [current.message]
                 parts.append(text[1:])
                 current.lines += 1
             continue
         if current is not None:
-            yield from complete(current)
+            # the message before this line is complete
+            if parts is not None:
+                current.message = "\n".join(parts)
+                parts = None
+            if current.severity in SECONDARY:
+                ready = attach(current)
+            else:
+                ready = feed(held) if held is not None else None
+                held = current
+            if ready:
+                yield from ready
             current = None
         match = rx.match(text)
         if match is None:
             if held is not None:
-                yield from asm.feed(held)
+                yield from feed(held)
                 held = None
             reason = "empty line" if not text.strip() else "line does not match log_line_prefix"
             yield from asm.reject(number, reason, text)
@@ -200,7 +207,7 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
             time_us = parse_time(stamp)
         except ValueError:
             if held is not None:
-                yield from asm.feed(held)
+                yield from feed(held)
                 held = None
             yield from asm.reject(number, "unreadable timestamp", text)
             continue
@@ -210,16 +217,22 @@ def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Rec
             time_us,
             key or "",
             key or None,
-            clean_name(user),
-            clean_name(database),
+            None if not user or user == "[unknown]" else user,
+            None if not database or database == "[unknown]" else database,
             clean_name(application) if app_as_request else None,
             severity,
             sqlstate,
-            "",
+            message,
         )
-        parts = [message]
     if current is not None:
-        yield from complete(current)
+        if parts is not None:
+            current.message = "\n".join(parts)
+        if current.severity in SECONDARY:
+            yield from attach(current)
+        else:
+            if held is not None:
+                yield from feed(held)
+            held = current
     if held is not None:
-        yield from asm.feed(held)
+        yield from feed(held)
     yield from asm.finish()
