@@ -61,6 +61,24 @@ ROUTE_COLUMNS = [
     "elapsed_verdict",
 ]
 
+#: The columns of the aligned-table view (csv and json carry all of :data:`ROUTE_COLUMNS`).
+ROUTE_TABLE_COLUMNS = [
+    "route",
+    "requests_before",
+    "requests_after",
+    "queries_per_request_before",
+    "queries_per_request_after",
+    "queries_verdict",
+    "db_ms_per_request_before",
+    "db_ms_per_request_after",
+    "elapsed_p50_before",
+    "elapsed_p50_after",
+    "elapsed_p50_change_ci_low",
+    "elapsed_p50_change_ci_high",
+    "p_adjusted",
+    "elapsed_verdict",
+]
+
 TEMPLATE_COLUMNS = [
     "route",
     "template_id",

@@ -67,6 +67,25 @@ COLUMNS = [
     "bootstrap_requests",
 ]
 
+#: The columns of the aligned-table view (csv and json carry all of :data:`COLUMNS`).
+TABLE_COLUMNS = [
+    "route",
+    "requests",
+    "requests_affected",
+    "db_ms_per_request_before",
+    "db_ms_per_request_after",
+    "elapsed_p50_before",
+    "elapsed_p50_after",
+    "elapsed_p50_after_ci_low",
+    "elapsed_p50_after_ci_high",
+    "elapsed_p99_before",
+    "elapsed_p99_after",
+    "amdahl_speedup",
+    "db_ms_saved_per_hour",
+    "busy_connections_before",
+    "busy_connections_after",
+]
+
 
 @dataclass(frozen=True)
 class Scenario:

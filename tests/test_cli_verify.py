@@ -182,3 +182,12 @@ def test_check_malformed_budgets_exit_3_with_one_line(two_weeks, tmp_path, capsy
     code, _, err = run_main(["check", "--store", two_weeks, "--budgets", str(budgets)], capsys)
     assert code == 3 and "must be a number" in err
     _one_line_error(err)
+
+
+def test_whatif_table_shows_a_compact_column_set(two_weeks, capsys):
+    code, out, err = run_main(
+        ["whatif", "--store", two_weeks, "--batch", "bunk", "--resamples", "20"], capsys
+    )
+    header = out.splitlines()[0].split()
+    assert code == 0 and header[0] == "route" and "amdahl_speedup" in header
+    assert "span_s" not in header and "(--format csv or json for every column)" in err

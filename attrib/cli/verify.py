@@ -7,7 +7,7 @@ import click
 import attrib
 from attrib import budgets, compare, windows
 from attrib.cli.options import emit, format_option, parse_time, store_option, time_range_options
-from attrib.whatif import BOOTSTRAP_CAP, Scenario
+from attrib.whatif import TABLE_COLUMNS, Scenario
 
 resamples_option = click.option(
     "--resamples",
@@ -77,13 +77,22 @@ def whatif_cmd(
             resamples=resamples,
             seed=seed,
         )
-    emit(df, fmt)
+    _emit(df, fmt, TABLE_COLUMNS)
     if (df["requests"] > df["bootstrap_requests"]).any():
         click.echo(
-            f"note: routes with more than {BOOTSTRAP_CAP:,} requests bootstrap a deterministic "
-            "subsample of that size (see bootstrap_requests)",
+            "note: the bootstrap of routes above its cap ran on a deterministic subsample "
+            "(bootstrap_requests in --format csv/json)",
             err=True,
         )
+
+
+def _emit(df, fmt: str, table_columns: list[str]) -> None:
+    """A compact set of columns for the aligned table; every column in csv and json."""
+    if fmt == "table":
+        emit(df[table_columns], fmt)
+        click.echo("(--format csv or json for every column)", err=True)
+    else:
+        emit(df, fmt)
 
 
 @click.command("compare")
@@ -170,7 +179,10 @@ def compare_cmd(
                 result = s.compare(w_before, w_after, other=other, **settings)
     for warning in result.warnings:
         click.echo(f"warning: {warning}", err=True)
-    emit(result.routes if by == "route" else result.templates, fmt)
+    if by == "route":
+        _emit(result.routes, fmt, compare.ROUTE_TABLE_COLUMNS)
+    else:
+        emit(result.templates, fmt)
 
 
 @click.command("check")
