@@ -16,6 +16,8 @@ from pathlib import Path
 from zoneinfo import ZoneInfo
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from attrib.comments import request_keys
 from attrib.errors import FormatError, MappingError, TimezoneError
@@ -570,3 +572,58 @@ def test_require_postgres_without_binaries_fails_on_ci_and_skips_elsewhere(
         pgserver.require_postgres()
     assert type(caught.value).__name__ == {"failed": "Failed", "skipped": "Skipped"}[outcome]
     assert str(tmp_path) in str(caught.value)
+
+
+# -- pairing under any interleaving (property test; the lines are constructed in the real shapes) ----
+
+_EXECUTION = st.tuples(
+    st.sampled_from(["SELECT 1 FROM huts WHERE id = $1", "SELECT 2 FROM bunks WHERE id = $1"]),
+    st.booleans(),  # named prepared statement already parsed: bind + execute only
+    st.lists(st.integers(1, 999), min_size=3, max_size=3),  # step durations in microseconds
+    st.booleans(),  # a parameters DETAIL after bind and execute
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    sessions=st.lists(st.lists(_EXECUTION, min_size=1, max_size=4), min_size=1, max_size=4),
+    order=st.randoms(use_true_random=False),
+)
+def test_read_stderr_pairs_protocol_steps_under_any_interleaving(sessions, order):
+    streams = []
+    expected = {}
+    for pid, executions in enumerate(sessions, start=100):
+        lines, want = [], []
+        for sql, named, micros, detail in executions:
+            steps = ("bind", "execute") if named else ("parse", "bind", "execute")
+            for step, us_ in zip(steps, micros, strict=False):
+                lines.append(f"LOG:  duration: {us_ / 1000:.3f} ms  {step} S_1: {sql}")
+                if detail and step != "parse":
+                    lines.append("DETAIL:  parameters: $1 = '7'")
+            want.append((sql, sum(micros[: len(steps)]), ("7",) if detail else None))
+        streams.append([(pid, line) for line in lines])
+        expected[str(pid)] = want
+    # interleave whole messages (a primary line and its DETAIL stay together, as the collector keeps them)
+    messages = []
+    for stream in streams:
+        grouped = []
+        for pid, line in stream:
+            if line.startswith("DETAIL") and grouped:
+                grouped[-1].append((pid, line))
+            else:
+                grouped.append([(pid, line)])
+        messages.append(grouped)
+    merged = []
+    while any(messages):
+        pick = order.choice([m for m in messages if m])
+        merged.extend(pick.pop(0))
+    text = "".join(
+        f"2026-12-01 23:11:43.500 UTC [{pid}] attrib@huts {line}\n" for pid, line in merged
+    )
+    records = read_text(text)
+    assert sum(r.lines for r in records) == len(merged)
+    got: dict = {}
+    for s in statements(records):
+        got.setdefault(s.session, []).append((s.sql, round(s.duration_ms * 1000), s.params))
+    assert got == expected
+    assert [r.line for r in records] == sorted(r.line for r in records)
