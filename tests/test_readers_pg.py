@@ -627,3 +627,51 @@ def test_read_stderr_pairs_protocol_steps_under_any_interleaving(sessions, order
         got.setdefault(s.session, []).append((s.sql, round(s.duration_ms * 1000), s.params))
     assert got == expected
     assert [r.line for r in records] == sorted(r.line for r in records)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    sessions=st.lists(
+        st.lists(st.tuples(_EXECUTION, st.booleans()), min_size=1, max_size=4),
+        min_size=1,
+        max_size=4,
+    ),
+    order=st.randoms(use_true_random=False),
+)
+def test_read_stderr_pairs_log_statement_durations_under_any_interleaving(sessions, order):
+    # log_statement = all + log_duration = on: bare durations of parse/bind, the execute (or simple
+    # statement) line, then its own duration, all of one session
+    messages = []
+    expected = {}
+    for pid, executions in enumerate(sessions, start=100):
+        grouped, want = [], []
+        for (sql, named, micros, detail), simple in executions:
+            if simple:
+                text = sql.replace("$1", "7")
+                grouped.append([(pid, f"LOG:  statement: {text}")])
+                grouped.append([(pid, f"LOG:  duration: {micros[0] / 1000:.3f} ms")])
+                want.append((text, micros[0], None))
+                continue
+            before = micros[1:2] if named else micros[:2]
+            grouped += [[(pid, f"LOG:  duration: {m / 1000:.3f} ms")] for m in before]
+            execute = [(pid, f"LOG:  execute S_1: {sql}")]
+            if detail:
+                execute.append((pid, "DETAIL:  parameters: $1 = '7'"))
+            grouped.append(execute)
+            grouped.append([(pid, f"LOG:  duration: {micros[2] / 1000:.3f} ms")])
+            want.append((sql, sum(before) + micros[2], ("7",) if detail else None))
+        messages.append(grouped)
+        expected[str(pid)] = want
+    merged = []
+    while any(messages):
+        pick = order.choice([m for m in messages if m])
+        merged.extend(pick.pop(0))
+    text = "".join(
+        f"2026-12-01 23:11:43.500 UTC [{pid}] attrib@huts {line}\n" for pid, line in merged
+    )
+    records = read_text(text)
+    assert sum(r.lines for r in records) == len(merged)
+    got: dict = {}
+    for s in statements(records):
+        got.setdefault(s.session, []).append((s.sql, round(s.duration_ms * 1000), s.params))
+    assert got == expected
