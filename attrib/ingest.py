@@ -13,7 +13,7 @@ from __future__ import annotations
 import os
 import time
 from collections import Counter, deque
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future, ProcessPoolExecutor
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
@@ -40,6 +40,7 @@ ID_SOURCES = ("comment", "field", "trace")
 EXCERPT_MAX = 200
 PROGRESS_EVERY = 20_000  # records between two progress reports
 ALREADY = "already ingested (same SHA-256)"
+NUL_REASON = "NUL bytes"
 
 # Which (request id, trace id) columns of a staged chunk each id source offers.
 _ID_COLUMNS = {
@@ -383,7 +384,9 @@ def ingest_file(
                 )
                 if options.log_line_prefix is not None:
                     read_options.log_line_prefix = options.log_line_prefix
-                _consume(module.read(lines, read_options), writer, lines, progress, started)
+                nul: set[int] = set()
+                records = module.read(_after_nul(lines, nul), read_options)
+                _consume(records, writer, lines, progress, started, nul)
             lines.drain()
             writer.finish()
             counts = writer.counts
@@ -452,8 +455,14 @@ def _consume(
     lines: sources.LineSource,
     progress: ProgressCallback | None,
     started: float,
+    nul: set[int] | None = None,
 ) -> None:
-    """Dispatch a reader's records to the writer's buffers (the hot loop of ingest)."""
+    """Dispatch a reader's records to the writer's buffers (the hot loop of ingest).
+
+    ``nul`` holds the numbers of lines that had NUL bytes (see :func:`_after_nul`); a one-line skip
+    or reject of such a line becomes a ``NUL bytes`` reject.
+    """
+    nul = nul if nul is not None else set()
     statements = writer.statements
     requests = writer.requests
     skips = writer.skips
@@ -471,8 +480,13 @@ def _consume(
             if len(requests) >= chunk:
                 writer.flush_requests()
         elif kind is Skip:
-            skips[rec.category] += rec.lines
+            if nul and rec.line in nul and rec.lines == 1:
+                rejects.append(Reject(rec.line, NUL_REASON, "", 1))
+            else:
+                skips[rec.category] += rec.lines
         elif kind is Reject:
+            if nul and rec.line in nul and rec.lines == 1:
+                rec = Reject(rec.line, NUL_REASON, rec.excerpt, 1)
             rejects.append(rec)
             if len(rejects) >= chunk:
                 writer.flush_rejects()
@@ -487,6 +501,19 @@ def _consume(
                 progress(
                     Progress(str(lines.path), lines.lines_read, where, lines.size, elapsed, False)
                 )
+
+
+def _after_nul(lines: Iterable[tuple[int, str]], nul: set[int]) -> Iterator[tuple[int, str]]:
+    """Give readers the text after the last NUL byte of a line, noting its number in ``nul``.
+
+    A crashed server leaves runs of NUL bytes in a text log, and the next line it writes follows the
+    run on the same physical line; that text is read, what came before the run is lost.
+    """
+    for number, text in lines:
+        if "\x00" in text:
+            nul.add(number)
+            text = sources.after_nul(text)
+        yield number, text
 
 
 class _Writer:

@@ -108,14 +108,52 @@ def head(path: str | os.PathLike[str], n: int = HEAD_LINES) -> list[str]:
             start = raw.read(8192)
         except (OSError, EOFError) as exc:
             raise FormatError(f"{path}: cannot read the file ({exc})") from None
-        if b"\x00" in start:
+        if looks_binary(start):
             raise FormatError(f"{path}: not a text log (the file holds binary data)")
         lines = []
         for line in decode_lines(io.BytesIO(start + raw.read(1 << 20))):
+            if "\x00" in line:  # NUL padding (a crash): detect on the text after it
+                line = after_nul(line)
+                if not line:
+                    continue
             lines.append(line)
             if len(lines) >= n:
                 break
     return lines
+
+
+def looks_binary(sample: bytes) -> bool:
+    """True when a file's first bytes are binary data rather than a text log with NUL padding.
+
+    Runs of NUL bytes are what a crashed server leaves in a text log (zeroed blocks), so they are
+    allowed. A sample is binary when NUL bytes stand alone (UTF-16 text, binary formats: more than
+    1% of the bytes) or when, without its NUL bytes, more than 30% of it is control characters or
+    invalid UTF-8 (thresholds: common practice, no source).
+
+    >>> looks_binary(b"2026-12-01 LOG:  x\\n" + b"\\x00" * 4096 + b"2026-12-01 LOG:  y\\n")
+    False
+    >>> looks_binary("log line\\n".encode("utf-16-le"))
+    True
+    """
+    if not sample:
+        return False
+    alone = len(sample) - len(sample.replace(b"\x00", b"")) - 2 * sample.count(b"\x00\x00")
+    if b"\x00" in sample and alone > len(sample) // 100:
+        return True
+    text = sample.replace(b"\x00", b"").decode("utf-8", errors="replace")
+    if not text:
+        return False
+    bad = sum(1 for c in text if c == "\ufffd" or (c < " " and c not in "\t\n\r\f\v\x1b"))
+    return bad * 10 > len(text) * 3
+
+
+def after_nul(text: str) -> str:
+    """The part of a line after its last NUL byte: what a server wrote after a run of NUL padding.
+
+    >>> after_nul("lost\\x00\\x00\\x002026-12-01 LOG:  ok")
+    '2026-12-01 LOG:  ok'
+    """
+    return text.rpartition("\x00")[2]
 
 
 class LineSource:
