@@ -26,9 +26,9 @@ READERS = {"stderr": pg_stderr, "csvlog": pg_csvlog, "jsonlog": pg_jsonlog}
 STATEMENT_MODE_PREFIX = "%m %c %e [%p] %q%u@%d app=%a "
 
 
-def _run(mode: str, prefix: str, tmp_path_factory) -> dict:
+def _run(mode: str, prefix: str, tmp_path_factory, settings: dict | None = None) -> dict:
     require_postgres()
-    with PgServer(mode=mode, log_line_prefix=prefix) as server:
+    with PgServer(mode=mode, log_line_prefix=prefix, settings=settings) as server:
         truth = run_workload(server.conninfo, protocol="extended", requests=18, loop=7)
         simple = run_workload(
             server.conninfo, protocol="simple", requests=12, first=101, do_setup=False
@@ -76,6 +76,12 @@ def statement_run(tmp_path_factory):
     return _run("statement", STATEMENT_MODE_PREFIX, tmp_path_factory)
 
 
+@pytest.fixture(scope="module")
+def combined_run(tmp_path_factory):
+    """log_min_duration_statement = 0 together with log_statement = all (durations lose their text)."""
+    return _run("duration", "%m [%p] %q%u@%d ", tmp_path_factory, {"log_statement": "'all'"})
+
+
 def _per_request(records: list) -> Counter:
     counts: Counter = Counter()
     for record in records:
@@ -87,17 +93,20 @@ def _per_request(records: list) -> Counter:
 
 
 @pytest.mark.parametrize("fmt", READERS)
-@pytest.mark.parametrize("run", ["duration_run", "statement_run"])
+@pytest.mark.parametrize("run", ["duration_run", "statement_run", "combined_run"])
 def test_server_logs_statement_counts_equal_workload_truth_for_every_request(fmt, run, request):
     # source: real PostgreSQL 15 server output
     result = request.getfixturevalue(run)
     truth = result["truth"]
     assert len(truth.counts) == 36
     assert dict(_per_request(result["records"][fmt])) == truth.counts
+    bunks = [r for r in truth.requests if r.route == "/huts/{id}/bunks"]
+    # the N+1 loop: 1 + 7 bunks per request; the batched run: 1 + 1
+    assert sorted({r.statements for r in bunks}) == [2, 8]
 
 
 @pytest.mark.parametrize("fmt", READERS)
-@pytest.mark.parametrize("run", ["duration_run", "statement_run"])
+@pytest.mark.parametrize("run", ["duration_run", "statement_run", "combined_run"])
 def test_server_logs_every_line_accounted_and_nothing_rejected(fmt, run, request):
     # source: real PostgreSQL 15 server output
     result = request.getfixturevalue(run)
