@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from datetime import datetime
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 import duckdb
 import matplotlib
@@ -34,7 +34,7 @@ _INK = "#22303c"
 _GRID = "#d9dee3"
 _PAPER = "#fbfaf7"
 
-KINDS = ("fraction", "histogram", "timeline", "heatmap", "nplus1")
+KINDS = ("fraction", "histogram", "timeline", "heatmap", "nplus1", "compare", "whatif")
 HEXBIN_ABOVE = 4000
 
 
@@ -551,9 +551,12 @@ def draw(
     interval: str = "1 minute",
     markers: Sequence[tuple[datetime, str]] = (),
     child: str | None = None,
+    before: str | None = None,
+    after: str | None = None,
+    tz: str | None = None,
+    scenario: Sequence[str] | None = None,
     width: int | None = None,
     height: int | None = None,
-    **_unused: Any,
 ) -> Figure:
     """Draw chart ``kind`` (one of :data:`KINDS`) for a store; the options each kind uses are named
     after the functions above. ``nplus1`` draws the top finding, or the one whose repeated template
@@ -586,7 +589,86 @@ def draw(
             child_template_id=row["child_template_id"],
             **size,
         )
+    if kind == "compare":
+        return compare_queries(con, before=before, after=after, tz=tz or "UTC", route=route, **size)
+    if kind == "whatif":
+        return whatif_elapsed(store, scenario=scenario or [], route=route, **window, **size)
     raise ChartError(f"unknown chart kind {kind!r}; use one of {', '.join(KINDS)}")
+
+
+def compare_queries(
+    con: duckdb.DuckDBPyConnection,
+    *,
+    before: str | None,
+    after: str | None,
+    tz: str = "UTC",
+    route: str | None = None,
+    other: duckdb.DuckDBPyConnection | None = None,
+    width: int = 900,
+    height: int = 560,
+) -> Figure:
+    """Empirical CDFs of queries per request in a 'before' and an 'after' window (or store)."""
+    from attrib.compare import request_totals
+    from attrib.windows import resolve
+
+    if other is None and (before is None or after is None):
+        raise ChartError("the compare chart needs --before and --after windows (START/END)")
+    w_before, w_after = resolve(before, after, tz=tz)
+    sides = [request_totals(con, w_before), request_totals(other or con, w_after)]
+    if route is not None:
+        sides = [df[df["route"] == route] for df in sides]
+    where = f" on {_short(route, 40)}" if route else ""
+    return ecdf_pair(
+        sides[0]["queries"].to_numpy(),
+        sides[1]["queries"].to_numpy(),
+        title=f"Queries per request before and after{where}",
+        xlabel="queries per request",
+        width=width,
+        height=height,
+    )
+
+
+def whatif_elapsed(
+    store: Store,
+    *,
+    scenario: Sequence[str],
+    route: str | None = None,
+    since: datetime | None = None,
+    until: datetime | None = None,
+    width: int = 900,
+    height: int = 560,
+) -> Figure:
+    """Empirical CDFs of request elapsed time now and projected under a what-if scenario.
+
+    ``scenario`` items are ``OP=TEMPLATE_ID[=FACTOR]`` with OP one of faster, batch, cache, remove.
+    """
+    from attrib import whatif
+
+    changes: dict[str, list[str]] = {"faster": [], "batch": [], "cache": [], "remove": []}
+    for item in scenario:
+        op, _, rest = item.partition("=")
+        if op not in changes or not rest:
+            raise ChartError(
+                f"bad --scenario {item!r}; use e.g. batch=3f2a9c1e or faster=3f2a9c1e=3x"
+            )
+        changes[op].append(rest)
+    if not any(changes.values()):
+        raise ChartError("the whatif chart needs at least one --scenario, e.g. batch=TEMPLATE_ID")
+    per = whatif.per_request(store.con, whatif.Scenario.parse(**changes), since=since, until=until)
+    if route is not None:
+        per = per[per["route"] == route]
+    _need(per, "requests affected by the scenario")
+    where = f" on {_short(route, 40)}" if route else " (affected requests)"
+    return ecdf_pair(
+        per["elapsed_ms_before"].to_numpy(),
+        per["elapsed_ms_after"].to_numpy(),
+        title=f"Elapsed time now and projected{where}",
+        xlabel="request elapsed time (ms, log scale)",
+        labels=("now", "projected"),
+        log=True,
+        width=width,
+        height=height,
+    )
 
 
 def save(fig: Figure, path: str | Path, *, dpi: int = 100) -> Path:
