@@ -293,3 +293,56 @@ def write_request_log(truth: Truth, path: str | Path) -> Path:
             }
             fh.write(json.dumps(record) + "\n")
     return path
+
+
+def run_repeated_lookups(
+    conninfo: str,
+    *,
+    requests: int = 3,
+    repeats: int = 4,
+    first: int = 901,
+    protocol: str = "extended",
+) -> Truth:
+    """Requests on ``GET /guests/{id}`` that send the same statement with the same parameters repeatedly.
+
+    Each request reads the guest once, then counts that guest's bookings ``repeats`` times with the same
+    parameter (the page header, the sidebar, ... each ask again): a redundant repeat that a cache would
+    remove. Needs the tables of :func:`setup`. Returns the ground truth like :func:`run_workload`.
+
+    Args:
+        conninfo: libpq connection string.
+        requests: how many requests (request ids ``req-<first>``, ...).
+        repeats: how often each request sends the repeated statement.
+        first: number of the first request id.
+        protocol: ``"simple"`` (client-side binding) or ``"extended"`` (server-side binding).
+    """
+    if protocol not in ("simple", "extended"):
+        raise ValueError(f"protocol must be 'simple' or 'extended', not {protocol!r}")
+    route = "/guests/{id}"
+    truth = Truth()
+    with psycopg.connect(conninfo, autocommit=True) as conn:
+        for i in range(requests):
+            number = first + i
+            rid = f"req-{number:04d}"
+            guest = 1 + number % 50
+            cur = psycopg.ClientCursor(conn) if protocol == "simple" else conn.cursor()
+            started = datetime.now(UTC)
+            t0 = time.perf_counter()
+            with cur:
+                cur.execute(
+                    tag("SELECT id, name, email FROM guests WHERE id = %s", rid, route), [guest]
+                )
+                cur.fetchall()
+                for _ in range(repeats):
+                    cur.execute(
+                        tag("SELECT count(*) FROM bookings WHERE guest_id = %s", rid, route),
+                        [guest],
+                    )
+                    cur.fetchall()
+            elapsed = (time.perf_counter() - t0) * 1000.0
+            truth.requests.append(
+                RequestTruth(
+                    rid, "GET", route, f"/guests/{guest}", 200, started, elapsed, 1 + repeats
+                )
+            )
+    return truth
