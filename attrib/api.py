@@ -176,14 +176,17 @@ class Store:
             self.con, scenario, since=since, until=until, resamples=resamples, seed=seed
         )
 
-    def compare(self, before: Any, after: Any, *, other: Store | None = None, **kw: Any) -> Any:
+    def compare(
+        self, before: Any = None, after: Any = None, *, other: Store | None = None, **kw: Any
+    ) -> Any:
         """Before/after per-route changes; see :func:`attrib.compare.compare`.
 
         ``other`` is the store of the "after" side (default: this store).
         """
         from attrib import compare
 
-        return compare.compare(self.con, (other or self).con, before=before, after=after, **kw)
+        after_con = other.con if other is not None else None
+        return compare.compare(self.con, after_con, before=before, after=after, **kw)
 
     def check(
         self, budgets: Any, *, since: datetime | None = None, until: datetime | None = None

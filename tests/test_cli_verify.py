@@ -191,3 +191,9 @@ def test_whatif_table_shows_a_compact_column_set(two_weeks, capsys):
     header = out.splitlines()[0].split()
     assert code == 0 and header[0] == "route" and "amdahl_speedup" in header
     assert "span_s" not in header and "(--format csv or json for every column)" in err
+
+
+def test_compare_one_store_without_windows_is_a_usage_error(two_weeks, capsys):
+    code, _, err = run_main(["compare", "--store", two_weeks], capsys)
+    assert code == 2 and "needs both --before and --after" in err
+    _one_line_error(err)
