@@ -31,7 +31,6 @@ __all__ = [
 ]
 
 DIALECTS = tuple(LEXERS)
-PARALLEL_MIN = 200_000  # below this many statements one process is faster than forking two
 MAX_STATEMENT = 1_000_000  # characters of a statement that are read (time stays bounded)
 _RAW_CACHE_MAX = 200_000  # statements remembered by their text (comment cut off)
 
@@ -179,15 +178,11 @@ def _parallel(statements: list[str], dialect: str, with_literals: bool, processe
 
 
 def _processes(n: int, processes: int | None) -> int:
-    if processes is not None:
-        return max(1, int(processes))
-    if n < PARALLEL_MIN or os.name != "posix":
+    # Default 1: on the 2-core test machine two forked workers were slower than one process
+    # (copy-on-write faults and sending results back cost more than they saved; see the docs).
+    if processes is None or os.name != "posix" or n < 2:
         return 1
-    try:
-        cpus = len(os.sched_getaffinity(0))
-    except AttributeError:
-        cpus = os.cpu_count() or 1
-    return min(cpus, 4)
+    return max(1, int(processes))
 
 
 def fingerprint_many(
@@ -203,8 +198,8 @@ def fingerprint_many(
         statements: SQL texts (any str; never raises on content).
         dialect: "postgres", "mysql", "sqlite" or "generic".
         with_literals: also return each statement's literal tokens, in order, comments excluded.
-        processes: worker processes for the masking pass; None picks 1 below 200,000 statements,
-            else one per CPU (forked; pass 1 when the caller must not fork).
+        processes: worker processes (forked) for the masking pass; None means 1, which was
+            the fastest on the 2-core machine we measured on (docs/fingerprints.md).
 
     Returns:
         A Batch with one id per statement and each distinct template once.

@@ -219,10 +219,10 @@ def main() -> None:
         normalize.cache_clear()  # every run parses its distinct shapes itself
         return fingerprints.fingerprint_many(statements, dialect=args.dialect, **kwargs)
 
-    one, one_wall, one_cpu = _timed(lambda: run(processes=1))
-    _line("fingerprint_many (processes=1)", n, one_wall, one_cpu)
+    one, one_wall, one_cpu = _timed(lambda: run(processes=2))
+    _line("fingerprint_many (processes=2, forked)", n, one_wall, one_cpu)
     batch, fast, fast_cpu = _timed(lambda: run())
-    _line("fingerprint_many (auto processes)", n, fast, fast_cpu)
+    _line("fingerprint_many (default: one process)", n, fast, fast_cpu)
     print(f"  {len(batch.templates)} distinct templates")
     lit, lit_wall, lit_cpu = _timed(lambda: run(with_literals=True))
     _line("fingerprint_many (with_literals=True)", n, lit_wall, lit_cpu)
