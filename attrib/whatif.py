@@ -461,6 +461,8 @@ def whatif(
     """
     _check_templates(con, scenario)
     where, params = request_filter("r", since=since, until=until)
+    if not con.execute(f"SELECT count(*) FROM requests r WHERE {where}", params).fetchone()[0]:
+        raise UsageError("no requests in the store for this time range; check --since/--until")
     con.execute(
         f"CREATE OR REPLACE TEMP TABLE _whatif_pert AS {_per_template_sql(where)}",
         [*params, list(scenario.cache)],

@@ -368,3 +368,17 @@ def test_whatif_busy_connections_equal_sweep_over_the_stored_statements(con):
     assert row["busy_connections_before"] == pytest.approx(expected, rel=1e-9)
     # Twice as fast: every interval halves, so does the time-average.
     assert row["busy_connections_after"] == pytest.approx(expected / 2, rel=1e-9)
+
+
+def test_whatif_empty_time_range_raises_usage_error(huts):
+    with pytest.raises(UsageError, match="no requests"):
+        whatif(huts, Scenario(batch=("bunk",)), since=datetime(2030, 1, 1))
+
+
+def test_whatif_scenario_that_changes_nothing_leaves_only_the_total_row(huts):
+    # `hut` runs once per request: batching it changes nothing.
+    df = whatif(huts, Scenario(batch=("hut",)), resamples=10)
+    assert list(df["route"]) == [ALL_ROUTES]
+    total = df.iloc[0]
+    assert total["requests_affected"] == 0
+    assert total["db_ms_per_request_after"] == total["db_ms_per_request_before"]
