@@ -235,3 +235,24 @@ def test_compare_route_on_one_side_only_has_no_verdict(con):
     # The correction counts only the two routes that were tested (m = 2, not 3).
     tested = ["/huts", "/huts/{id}/bunks"]
     np.testing.assert_allclose(r.loc[tested, "p_adjusted"], holm(r.loc[tested, "p_value"]))
+
+
+def test_compare_alpha_and_correction_decide_the_verdict(two_weeks):
+    before, after = _windows()
+    bh = compare(two_weeks, before=before, after=after, correction="bh", resamples=20)
+    r = bh.routes.set_index("route")
+    np.testing.assert_allclose(r["p_adjusted"], benjamini_hochberg(r["p_value"]))
+    assert r.loc["/huts/{id}/bunks", "queries_verdict"] == "fewer"
+    p = r.loc["/huts/{id}/bunks", "queries_p_adjusted"]
+    strict = compare(two_weeks, before=before, after=after, alpha=p / 2, resamples=20)
+    assert (
+        strict.routes.set_index("route").loc["/huts/{id}/bunks", "queries_verdict"] == "unchanged"
+    )
+
+
+def test_compare_bad_alpha_or_correction_raises_usage_error(two_weeks):
+    before, after = _windows()
+    with pytest.raises(UsageError, match="--alpha"):
+        compare(two_weeks, before=before, after=after, alpha=1.5)
+    with pytest.raises(UsageError, match="unknown correction"):
+        compare(two_weeks, before=before, after=after, correction="bonferroni")
