@@ -22,6 +22,8 @@ from __future__ import annotations
 
 import math
 import re
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime
 
@@ -48,6 +50,8 @@ COLUMNS = [
     "requests_affected",
     "db_ms_per_request_before",
     "db_ms_per_request_after",
+    "db_ms_p50_before",
+    "db_ms_p50_after",
     *[
         f"elapsed_p{q}_{part}"
         for q in PERCENTILES
@@ -424,6 +428,8 @@ _AGG = """
     count(*) FILTER (WHERE affected) AS requests_affected,
     avg(db_ms) AS db_ms_per_request_before,
     avg(db_ms_after) AS db_ms_per_request_after,
+    quantile_cont(db_ms, 0.5) AS db_ms_p50_before,
+    quantile_cont(db_ms_after, 0.5) AS db_ms_p50_after,
     {pcts}
     avg(elapsed_ms) AS elapsed_mean_before,
     avg(elapsed_after) AS elapsed_mean_after,
@@ -459,6 +465,38 @@ def whatif(
         One row per affected route, most database time saved first, then the all-routes row; columns
         :data:`COLUMNS` (definitions in docs/whatif-compare.md).
     """
+    with _projection(con, scenario, since, until):
+        return _summarise(con, resamples, seed, bootstrap_cap)
+
+
+def per_request(
+    con: duckdb.DuckDBPyConnection,
+    scenario: Scenario,
+    *,
+    since: datetime | None = None,
+    until: datetime | None = None,
+) -> pd.DataFrame:
+    """One row per request the scenario changes, with its figures now and projected.
+
+    Columns: route, queries_before, queries_after, db_ms_before, db_ms_after, elapsed_ms_before,
+    elapsed_ms_after (the same model as :func:`whatif`; used by the ``whatif`` chart).
+    """
+    with _projection(con, scenario, since, until):
+        return con.execute(
+            """SELECT route, queries AS queries_before, queries_after, db_ms AS db_ms_before,
+                      db_ms_after, elapsed_ms AS elapsed_ms_before, elapsed_after AS elapsed_ms_after
+               FROM _whatif_requests WHERE affected ORDER BY h, rs, rl, rq"""
+        ).df()
+
+
+@contextmanager
+def _projection(
+    con: duckdb.DuckDBPyConnection,
+    scenario: Scenario,
+    since: datetime | None,
+    until: datetime | None,
+) -> Iterator[None]:
+    """Fill the temporary table ``_whatif_requests`` (one row per request) for the scenario."""
     _check_templates(con, scenario)
     where, params = request_filter("r", since=since, until=until)
     if not con.execute(f"SELECT count(*) FROM requests r WHERE {where}", params).fetchone()[0]:
@@ -468,8 +506,10 @@ def whatif(
         [*params, list(scenario.cache)],
     )
     try:
-        return _project(con, scenario, where, params, since, until, resamples, seed, bootstrap_cap)
+        _project(con, scenario, where, params, since, until)
+        yield
     finally:
+        con.execute("DROP TABLE IF EXISTS _whatif_requests")
         con.execute("DROP TABLE IF EXISTS _whatif_pert")
 
 
@@ -480,10 +520,7 @@ def _project(
     params: list,
     since: datetime | None,
     until: datetime | None,
-    resamples: int,
-    seed: int,
-    cap: int,
-) -> pd.DataFrame:
+) -> None:
     savings = _savings_table(con, scenario, since, until)
     scn = pd.DataFrame(
         {
@@ -501,9 +538,7 @@ def _project(
         con.execute(
             f"CREATE OR REPLACE TEMP TABLE _whatif_requests AS {_per_request_sql(where)}", params
         )
-        return _summarise(con, resamples, seed, cap)
     finally:
-        con.execute("DROP TABLE IF EXISTS _whatif_requests")
         con.unregister("_whatif_scenario")
         con.unregister("_whatif_savings")
 

@@ -124,6 +124,8 @@ def test_compare_batched_loop_is_fewer_and_faster_other_route_unchanged(two_week
     loop = r.loc["/huts/{id}/bunks"]
     assert (loop["requests_before"], loop["requests_after"]) == (30, 30)
     assert loop["queries_per_request_before"] == 11 and loop["queries_per_request_after"] == 2
+    # db ms per request: 5 + 10 + 0.1 * 55 = 20.5 with the loop, 5 + 1.1 = 6.1 with one call.
+    assert (loop["db_ms_p50_before"], loop["db_ms_p50_after"]) == pytest.approx((20.5, 6.1))
     assert loop["queries_verdict"] == "fewer" and loop["elapsed_verdict"] == "faster"
     assert loop["queries_change"] == -9 == loop["queries_change_ci_low"]
     assert loop["elapsed_p50_change_ci_low"] <= loop["elapsed_p50_change"]

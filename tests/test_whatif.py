@@ -207,6 +207,7 @@ def test_whatif_batch_loop_saves_fixed_costs_and_gaps(huts):
     assert r["requests"] == 10 and r["requests_affected"] == 10
     assert r["db_ms_per_request_before"] == pytest.approx(20.5)
     assert r["db_ms_per_request_after"] == pytest.approx(11.5)
+    assert (r["db_ms_p50_before"], r["db_ms_p50_after"]) == pytest.approx((20.5, 11.5))
     assert r["elapsed_p50_before"] == pytest.approx(100.0)
     assert r["elapsed_p50_after"] == pytest.approx(82.0)
     assert r["elapsed_p99_after"] == pytest.approx(82.0)

@@ -7,11 +7,13 @@ load drifts alike for both; their request logs go to two stores (each store link
 requests). ``attrib whatif --batch`` on the loop store predicts the route's database time per request
 after batching; the batched store measures it.
 
-Tolerance: the prediction must be within 50% of the measurement. The saving model removes (r - 1)
-fixed costs per call and keeps the per-row cost; the real batched statement has another plan (an
-index scan over an array of keys instead of one key), and every duration here is a fraction of a
-millisecond timed on a shared 2-core machine. 50% is our judgement for that setting (no source); the
-figures measured are printed and recorded in docs/whatif-compare.md.
+Tolerance: the predicted median database time per request of the route must be within 50% of the
+measured median. The saving model removes (r - 1) fixed costs per call and keeps the per-row cost; the
+real batched statement has another plan (an index scan over an array of keys instead of one key), and
+every duration here is a fraction of a millisecond timed on a shared 2-core machine. 50% is our
+judgement for that setting (no source). The median, not the mean, is asserted: a few statements slowed
+by other processes on the machine move the mean of 30 requests (the mean is printed too, and both are
+recorded in docs/whatif-compare.md).
 """
 
 from __future__ import annotations
@@ -93,11 +95,13 @@ def test_whatif_batch_prediction_matches_the_batched_run(stores, compared):
     )
     p = next(r for r in predicted if r["route"] == ROUTE)
     m = next(r for r in compared if r["route"] == ROUTE)
-    pred, meas = p["db_ms_per_request_after"], m["db_ms_per_request_after"]
+    pred, meas = p["db_ms_p50_after"], m["db_ms_p50_after"]
     print(
-        f"\n{ROUTE}: db ms/request before {p['db_ms_per_request_before']:.3f} "
-        f"(compare: {m['db_ms_per_request_before']:.3f}); after predicted {pred:.3f}, "
-        f"measured {meas:.3f} (ratio {pred / meas:.2f}); "
+        f"\n{ROUTE}: db ms/request median before {p['db_ms_p50_before']:.3f}, after predicted "
+        f"{pred:.3f}, measured {meas:.3f} (ratio {pred / meas:.2f}); mean before "
+        f"{p['db_ms_per_request_before']:.3f}, after predicted {p['db_ms_per_request_after']:.3f}, "
+        f"measured {m['db_ms_per_request_after']:.3f} "
+        f"(ratio {p['db_ms_per_request_after'] / m['db_ms_per_request_after']:.2f}); "
         f"elapsed p50 before {p['elapsed_p50_before']:.3f}, after predicted "
         f"{p['elapsed_p50_after']:.3f} [{p['elapsed_p50_after_ci_low']:.3f}, "
         f"{p['elapsed_p50_after_ci_high']:.3f}], measured {m['elapsed_p50_after']:.3f}; "
@@ -105,6 +109,7 @@ def test_whatif_batch_prediction_matches_the_batched_run(stores, compared):
     )
     assert p["requests_affected"] == CHUNKS * PER_CHUNK // 6
     assert p["db_ms_per_request_before"] == pytest.approx(m["db_ms_per_request_before"])
+    assert p["db_ms_p50_before"] == pytest.approx(m["db_ms_p50_before"])
     assert abs(pred - meas) <= TOLERANCE * meas
 
 
