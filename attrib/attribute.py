@@ -203,26 +203,28 @@ def routes(
           ON p.req_source_id = r.source_id AND p.req_line = r.line AND p.req_seq = r.seq
         WHERE {where}
     ),
-    total AS (SELECT sum(s.duration_ms) AS ms FROM statements s WHERE {swhere})
+    total AS (SELECT sum(s.duration_ms) AS ms FROM statements s WHERE {swhere}),
+    agg AS (
     SELECT route,
            count(*) AS requests,
            avg(queries) AS queries_per_request_mean,
-           quantile_cont(queries, 0.5) AS queries_per_request_p50,
-           quantile_cont(queries, 0.95) AS queries_per_request_p95,
+           quantile_cont(queries, [0.5, 0.95]) AS qq,
            max(queries) AS queries_per_request_max,
            sum(db_ms) AS db_ms_total,
            sum(db_ms) / nullif(any_value(total.ms), 0) AS db_share,
-           quantile_cont(db_ms, 0.5) AS db_ms_per_request_p50,
-           quantile_cont(db_ms, 0.95) AS db_ms_per_request_p95,
+           quantile_cont(db_ms, [0.5, 0.95]) AS qd,
            quantile_cont(db_ms / nullif(elapsed_ms, 0), 0.5) AS db_fraction_p50,
            sum(db_ms) / nullif(sum(elapsed_ms), 0) AS db_fraction_aggregate,
-           quantile_cont(elapsed_ms, 0.5) AS elapsed_ms_p50,
-           quantile_cont(elapsed_ms, 0.95) AS elapsed_ms_p95,
-           quantile_cont(elapsed_ms, 0.99) AS elapsed_ms_p99,
+           quantile_cont(elapsed_ms, [0.5, 0.95, 0.99]) AS qe,
            avg(templates) AS distinct_templates_per_request_mean,
            (sum(queries) - sum(templates)) / nullif(sum(queries), 0) AS repeat_fraction
     FROM req, total
     GROUP BY route
+    )
+    SELECT *, qq[1] AS queries_per_request_p50, qq[2] AS queries_per_request_p95,
+           qd[1] AS db_ms_per_request_p50, qd[2] AS db_ms_per_request_p95,
+           qe[1] AS elapsed_ms_p50, qe[2] AS elapsed_ms_p95, qe[3] AS elapsed_ms_p99
+    FROM agg
     """
     df = _frame(con, sql, [*params, *sparams], ROUTE_COLUMNS)
     df = df.astype({"requests": "int64", "queries_per_request_max": "int64"})
@@ -253,53 +255,65 @@ def templates(
         dicts (largest share first; statements no request claims count under ``"(no request)"``).
     """
     where, params = time_filter("s", since=since, until=until)
+    # Per-template figures come from the statements alone; only linked statements are joined to
+    # their request, and the "(no request)" part is what remains of each template's totals.
     sql = f"""
-    WITH st AS (
-        SELECT s.template_id, s.duration_ms, s.rows, s.started_at,
-               r.source_id AS rs, r.line AS rl, r.seq AS rq,
-               coalesce(r.route, '{NO_REQUEST}') AS route
-        FROM statements s
-        LEFT JOIN links l ON l.source_id = s.source_id AND l.line = s.line AND l.seq = s.seq
-        LEFT JOIN requests r
-          ON r.source_id = l.req_source_id AND r.line = l.req_line AND r.seq = l.req_seq
-        WHERE {where}
-    ),
-    tpl AS (
+    WITH tpl AS (
         SELECT template_id, count(*) AS calls,
                coalesce(sum(duration_ms), 0) AS total_ms,
                avg(duration_ms) AS mean_ms,
-               quantile_cont(duration_ms, 0.5) AS p50_ms,
-               quantile_cont(duration_ms, 0.95) AS p95_ms,
-               quantile_cont(duration_ms, 0.99) AS p99_ms,
+               quantile_cont(duration_ms, [0.5, 0.95, 0.99]) AS q,
                avg(rows) AS rows_per_call,
-               min(started_at) AS first_seen, max(started_at) AS last_seen,
-               -- hash of the request key: exact unless two request keys collide in 64 bits
-               count(rs) / nullif(count(DISTINCT hash(rs, rl, rq)) FILTER (rs IS NOT NULL), 0)
-                   AS calls_per_request
-        FROM st GROUP BY template_id
+               min(started_at) AS first_seen, max(started_at) AS last_seen
+        FROM statements s WHERE {where}
+        GROUP BY template_id
+    ),
+    per_req AS (
+        SELECT s.template_id, l.req_source_id, l.req_line, l.req_seq,
+               count(*) AS calls, coalesce(sum(s.duration_ms), 0) AS ms
+        FROM links l
+        JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
+        WHERE {where}
+        GROUP BY s.template_id, l.req_source_id, l.req_line, l.req_seq
     ),
     per_route AS (
-        SELECT template_id, route, count(*) AS calls, coalesce(sum(duration_ms), 0) AS ms
-        FROM st GROUP BY template_id, route
+        SELECT p.template_id, r.route, sum(p.calls) AS calls, sum(p.ms) AS ms,
+               count(*) AS requests
+        FROM per_req p
+        JOIN requests r
+          ON r.source_id = p.req_source_id AND r.line = p.req_line AND r.seq = p.req_seq
+        GROUP BY p.template_id, r.route
     ),
+    unlinked AS (
+        SELECT t.template_id, '{NO_REQUEST}' AS route,
+               t.calls - coalesce(sum(p.calls), 0) AS calls,
+               t.total_ms - coalesce(sum(p.ms), 0) AS ms,
+               0 AS requests
+        FROM tpl t LEFT JOIN per_route p USING (template_id)
+        GROUP BY t.template_id, t.calls, t.total_ms
+        HAVING t.calls > coalesce(sum(p.calls), 0)
+    ),
+    parts AS (SELECT * FROM per_route UNION ALL SELECT * FROM unlinked),
     shares AS (
         SELECT p.template_id,
+               sum(p.calls) FILTER (WHERE p.route <> '{NO_REQUEST}')
+                   / nullif(sum(p.requests), 0) AS calls_per_request,
                list({{'route': p.route,
                       'share': CASE WHEN t.total_ms > 0 THEN p.ms / t.total_ms
                                     ELSE p.calls / t.calls END}}
                     ORDER BY p.ms DESC, p.calls DESC, p.route) AS routes
-        FROM per_route p JOIN tpl t USING (template_id)
+        FROM parts p JOIN tpl t USING (template_id)
         GROUP BY p.template_id
     ),
     total AS (SELECT sum(total_ms) AS ms FROM tpl)
-    SELECT t.template_id, tt.template, t.calls, t.calls_per_request, t.total_ms,
+    SELECT t.template_id, tt.template, t.calls, sh.calls_per_request, t.total_ms,
            t.total_ms / nullif(total.ms, 0) AS share,
-           t.mean_ms, t.p50_ms, t.p95_ms, t.p99_ms, t.rows_per_call,
-           shares.routes, t.first_seen, t.last_seen
-    FROM tpl t JOIN shares USING (template_id)
+           t.mean_ms, t.q[1] AS p50_ms, t.q[2] AS p95_ms, t.q[3] AS p99_ms, t.rows_per_call,
+           sh.routes, t.first_seen, t.last_seen
+    FROM tpl t JOIN shares sh USING (template_id)
     LEFT JOIN templates tt USING (template_id), total
     """
-    df = _frame(con, sql, params, TEMPLATE_COLUMNS)
+    df = _frame(con, sql, [*params, *params], TEMPLATE_COLUMNS)
     df["calls"] = df["calls"].astype("int64")
     df["routes"] = [_route_list(v) for v in df["routes"]]
     return order(df, sort, top=top, reverse=reverse, tie="template_id")

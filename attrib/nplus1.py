@@ -17,6 +17,7 @@ from typing import Any
 
 import duckdb
 import networkx as nx
+import numpy as np
 import pandas as pd
 
 from attrib import stats
@@ -45,8 +46,6 @@ NPLUS1_COLUMNS = [
     "gap_ms_median",
     "saving_ms_estimate",
 ]
-
-_ORDER = "started_at, source_id, line, seq"
 
 
 def find(
@@ -80,7 +79,8 @@ def find(
     else:
         where, params = request_filter("r", since=since, until=until, route=route)
     pairs = f"attrib_nplus1_{uuid.uuid4().hex}"
-    con.execute(f"CREATE TEMP TABLE {pairs} AS {_pairs_sql(where)}", [*params, min_repeats])
+    sql = _pairs_sql(where, _order_key(con))
+    con.execute(f"CREATE TEMP TABLE {pairs} AS {sql}", [*params, min_repeats])
     try:
         findings = con.execute(_FINDINGS_SQL.format(pairs=pairs)).df()
         edges = con.execute(_EDGES_SQL.format(pairs=pairs)).df()
@@ -143,24 +143,30 @@ def fixed_costs(
     if not template_ids:
         return {}
     where, params = time_filter("s", since=since, until=until)
+    known = f"""
+        FROM statements s
+        WHERE s.template_id IN (SELECT unnest(?::VARCHAR[])) AND s.duration_ms IS NOT NULL
+          AND {where}
+    """
+    counts = con.execute(
+        f"SELECT s.template_id, count(*) {known} GROUP BY s.template_id", [template_ids, *params]
+    ).fetchall()
+    strides = {t: max(1, n // sample) for t, n in counts}
     df = con.execute(
         f"""
-        WITH calls AS (
-            SELECT s.template_id, s.duration_ms, s.rows, hash(s.source_id, s.line, s.seq) AS h
-            FROM statements s
-            WHERE s.template_id IN (SELECT unnest(?::VARCHAR[])) AND s.duration_ms IS NOT NULL
-              AND {where}
+        WITH stride AS (
+            SELECT unnest(?::VARCHAR[]) AS template_id, unnest(?::UBIGINT[]) AS k
         ),
-        stride AS (
-            SELECT template_id, greatest(1, count(*) // ?)::UBIGINT AS k
-            FROM calls GROUP BY template_id
+        calls AS (
+            SELECT s.template_id, s.duration_ms, s.rows, hash(s.source_id, s.line, s.seq) AS h
+            {known}
         )
         SELECT c.template_id, c.duration_ms, c.rows
         FROM calls c JOIN stride USING (template_id)
         WHERE c.h % stride.k = 0
         QUALIFY row_number() OVER (PARTITION BY c.template_id ORDER BY c.h) <= ?
         """,
-        [template_ids, *params, sample, sample],
+        [list(strides), list(strides.values()), template_ids, *params, sample],
     ).df()
     groups = {t: g for t, g in df.groupby("template_id", sort=False)}
     out = {}
@@ -169,8 +175,10 @@ def fixed_costs(
         if g is None:
             out[t] = stats.CostFit(math.nan, 0.0, "median", 0)
             continue
-        rows = [None if pd.isna(r) else float(r) for r in g["rows"]]
-        out[t] = stats.fit_fixed_cost(g["duration_ms"].astype(float).tolist(), rows)
+        out[t] = stats.fit_fixed_cost(
+            g["duration_ms"].to_numpy(dtype=float, na_value=np.nan),
+            g["rows"].to_numpy(dtype=float, na_value=np.nan),
+        )
     return out
 
 
@@ -219,26 +227,46 @@ def pick_parent(graph: nx.DiGraph, child: str, kind: str) -> str | None:
 # --- SQL ----------------------------------------------------------------------------------------
 
 
-def _pairs_sql(where: str) -> str:
-    """One row per candidate (request, template): calls, kind, predecessor, wasted time, gaps."""
+def _order_key(con: duckdb.DuckDBPyConnection) -> str:
+    """SQL for a value that sorts a request's statements by (started_at, source_id, line, seq).
+
+    A HUGEINT (microseconds in the high 64 bits, then 15 bits of source id, 32 of line, 16 of
+    seq) when every position fits those widths, which one cheap scan checks; otherwise a STRUCT of
+    the four columns, which sorts the same way but compares several times slower.
+    """
+    fits = con.execute(
+        "SELECT coalesce(min(source_id) >= 0 AND max(source_id) < 32768 AND min(line) >= 0"
+        " AND max(line) < 4294967296 AND min(seq) >= 0 AND max(seq) < 65536, true)"
+        " FROM statements"
+    ).fetchone()[0]
+    if fits:
+        return (
+            "((epoch_us({a}started_at)::HUGEINT << 64) | ({a}source_id::HUGEINT << 48)"
+            " | ({a}line::HUGEINT << 16) | {a}seq::HUGEINT)"
+        )
+    return "{{'t': {a}started_at, 's': {a}source_id, 'l': {a}line, 'q': {a}seq}}"
+
+
+def _pairs_sql(where: str, key: str) -> str:
+    """One row per candidate (request, template): calls, kind, predecessor, wasted time, gaps.
+
+    One window pass over the linked statements, ordered by ``key`` (see :func:`_order_key`) inside
+    each request, gives every statement its predecessor; one GROUP BY per (request, template) then
+    keeps the candidates and reads the predecessor and duration of their first and last call.
+    """
+    k = key.format(a="s.")
     return f"""
     WITH req AS (SELECT r.source_id, r.line, r.seq, r.route FROM requests r WHERE {where}),
     st AS (
         SELECT l.req_source_id AS rs, l.req_line AS rl, l.req_seq AS rq,
-               s.source_id, s.line, s.seq, s.started_at, s.duration_ms, s.rows,
-               s.template_id, s.param_hash
+               s.started_at, s.duration_ms, s.template_id, s.param_hash, {k} AS key,
+               lag(s.template_id) OVER w AS prev_template_id,
+               lag(s.rows) OVER w AS prev_rows
         FROM links l
         SEMI JOIN req
           ON l.req_source_id = req.source_id AND l.req_line = req.line AND l.req_seq = req.seq
         JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
-    ),
-    ordered AS (
-        SELECT *,
-               row_number() OVER w AS pos,
-               lag(template_id) OVER w AS prev_template_id,
-               lag(rows) OVER w AS prev_rows
-        FROM st
-        WINDOW w AS (PARTITION BY rs, rl, rq ORDER BY {_ORDER})
+        WINDOW w AS (PARTITION BY l.req_source_id, l.req_line, l.req_seq ORDER BY {k})
     ),
     pairs AS (
         SELECT rs, rl, rq, template_id,
@@ -247,21 +275,24 @@ def _pairs_sql(where: str) -> str:
                CASE WHEN min(param_hash) <> max(param_hash)
                          OR count(param_hash) BETWEEN 1 AND count(*) - 1
                     THEN 'n_plus_one' ELSE 'redundant' END AS kind,
-               arg_min_null(prev_template_id, pos) AS prev_template_id,
-               arg_min_null(prev_rows, pos) AS prev_rows,
-               coalesce(sum(duration_ms), 0) - coalesce(arg_min_null(duration_ms, pos), 0)
-                   AS wasted_ms,
-               -- sum over consecutive calls of (next start - previous end), telescoped
-               ((epoch_us(max(started_at)) - epoch_us(min(started_at))) / 1000.0
-                   - (coalesce(sum(duration_ms), 0)
-                      - coalesce(arg_max_null(duration_ms, pos), 0)))
-                   / (count(*) - 1) AS gap_ms_mean
-        FROM ordered
+               arg_min_null(prev_template_id, key) AS prev_template_id,
+               arg_min_null(prev_rows, key) AS prev_rows,
+               min(started_at) AS first_at, max(started_at) AS last_at,
+               arg_min_null(duration_ms, key) AS first_ms,
+               arg_max_null(duration_ms, key) AS last_ms,
+               coalesce(sum(duration_ms), 0) AS ms
+        FROM st
         GROUP BY rs, rl, rq, template_id
         HAVING count(*) >= ?
     )
-    SELECT req.route, pairs.*
-    FROM pairs JOIN req ON req.source_id = pairs.rs AND req.line = pairs.rl AND req.seq = pairs.rq
+    SELECT req.route, p.rs, p.rl, p.rq, p.template_id, p.n, p.kind,
+           p.prev_template_id, p.prev_rows,
+           p.ms - coalesce(p.first_ms, 0) AS wasted_ms,
+           -- sum over consecutive calls of (next start - previous end), telescoped
+           ((epoch_us(p.last_at) - epoch_us(p.first_at)) / 1000.0
+               - (p.ms - coalesce(p.last_ms, 0))) / (p.n - 1) AS gap_ms_mean
+    FROM pairs p
+    JOIN req ON req.source_id = p.rs AND req.line = p.rl AND req.seq = p.rq
     """
 
 

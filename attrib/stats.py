@@ -8,6 +8,7 @@ See docs/methods.md for every formula and its source.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
@@ -87,12 +88,8 @@ def fit_fixed_cost(
     >>> fit_fixed_cost([4.0, 2.0, 3.0]).method
     'median'
     """
-    y = np.array([np.nan if d is None else d for d in durations], dtype=float)
-    x = (
-        np.full(len(y), np.nan)
-        if rows is None
-        else np.array([np.nan if r is None else r for r in rows], dtype=float)
-    )
+    y = _floats(durations)
+    x = np.full(len(y), np.nan) if rows is None else _floats(rows)
     if len(x) != len(y):
         raise ValueError("durations and rows must have the same length")
     known = ~np.isnan(y)
@@ -118,7 +115,7 @@ def theil_sen(x: Sequence[float], y: Sequence[float]) -> tuple[float, float]:
     """
     xs = np.asarray(x, dtype=float)
     ys = np.asarray(y, dtype=float)
-    i, j = np.triu_indices(len(xs), k=1)
+    i, j = _pairs(len(xs))
     dx, dy = xs[j] - xs[i], ys[j] - ys[i]
     # a pair with x_j < x_i gives the same slope as (j, i); pairs with equal x are left out
     keep = dx != 0
@@ -126,6 +123,17 @@ def theil_sen(x: Sequence[float], y: Sequence[float]) -> tuple[float, float]:
         raise ValueError("theil_sen needs at least two distinct x values")
     slope = float(np.median(dy[keep] / dx[keep]))
     return slope, float(np.median(ys) - slope * np.median(xs))
+
+
+def _floats(values: Sequence[float | None]) -> np.ndarray:
+    if isinstance(values, np.ndarray):
+        return values.astype(float)
+    return np.array([np.nan if v is None else v for v in values], dtype=float)
+
+
+@functools.lru_cache(maxsize=8)
+def _pairs(n: int) -> tuple[np.ndarray, np.ndarray]:
+    return np.triu_indices(n, k=1)
 
 
 # --- the saving model -------------------------------------------------------------------------
