@@ -26,6 +26,9 @@ MAX_DEPTH = 200  # deeper bracket nesting is not given to sqlglot (recursion)
 SQLGLOT_DIALECT = {"postgres": "postgres", "mysql": "mysql", "sqlite": "sqlite", "generic": ""}
 _DML = {exp.Select: "SELECT", exp.Insert: "INSERT", exp.Update: "UPDATE", exp.Delete: "DELETE"}
 _PREFIXED_MASK = re.compile(r"(?<![\w$])(?:[EeBbXxNn]|[Uu]&|_[A-Za-z0-9]+)'\?'")
+_SAVEPOINT_SHAPES = frozenset(
+    ("SAVEPOINT '?'", "RELEASE SAVEPOINT '?'", "ROLLBACK TO SAVEPOINT '?'")
+)
 _SAFE_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_$]*\Z")
 _log = logging.getLogger("sqlglot")
 _BACKTICK = re.compile(r"`((?:[^`]|``)*)`")
@@ -208,10 +211,9 @@ def normalize(shape: str, dialect: str, folds_case: bool) -> Normalized:
     kw = fallback.keywords(dialect)
     if not shape:
         return Normalized("", "other", (), False)
-    if shape.endswith("'?'") and shape.split(" ", 1)[0] in ("SAVEPOINT", "RELEASE", "ROLLBACK"):
-        # Shapes of savepoint statements are already canonical (mask.finish); sqlglot misreads them.
-        if shape.count(" ") <= 3 and "'?'" not in shape[:-3]:
-            return Normalized(shape[:-3] + "?", shape.split(" ", 1)[0], (), True)
+    if shape in _SAVEPOINT_SHAPES:
+        # Savepoint statements are already canonical (mask.finish); sqlglot misreads them.
+        return Normalized(shape[:-3] + "?", shape.split(" ", 1)[0], (), True)
     trees = None
     if len(shape) <= MAX_PARSE_CHARS and (
         shape.count("(") <= MAX_DEPTH or _depth(shape) <= MAX_DEPTH

@@ -279,6 +279,10 @@ SAME = [
         "ROLLBACK TO SAVEPOINT sp_99",
     ),
     ("mysql savepoint with backticks", "mysql", "SAVEPOINT `sp_1`", "SAVEPOINT sp_2"),
+    # PostgreSQL manual, ROLLBACK TO SAVEPOINT and RELEASE SAVEPOINT: WORK/TRANSACTION and the
+    # word SAVEPOINT are optional.
+    ("ROLLBACK WORK TO name", "postgres", "ROLLBACK WORK TO SAVEPOINT sp_1", "rollback to sp_2"),
+    ("RELEASE without SAVEPOINT", "postgres", "RELEASE sp_1", "RELEASE SAVEPOINT sp_2"),
     # Statements sqlglot keeps opaque (Command): literals were masked first ---------------------------
     ("SET", "postgres", "SET TIME ZONE 'UTC'", "set time zone 'Europe/Vienna'"),
     ("SET with number", "postgres", "SET statement_timeout = 5000", "SET statement_timeout = 100"),
@@ -412,6 +416,7 @@ DIFFERENT = [
     ("quoted name with digits", "postgres", 'SELECT "col 1" FROM t', 'SELECT "col 2" FROM t'),
     ("mysql backtick name with digits", "mysql", "SELECT `col 1` FROM t", "SELECT `col 2` FROM t"),
     ("savepoint vs release", "postgres", "SAVEPOINT sp_1", "RELEASE SAVEPOINT sp_1"),
+    ("release vs rollback to", "postgres", "RELEASE SAVEPOINT sp_1", "ROLLBACK TO SAVEPOINT sp_1"),
     ("SET different setting", "postgres", "SET statement_timeout = 5", "SET lock_timeout = 5"),
     ("BEGIN vs COMMIT", "postgres", "BEGIN", "COMMIT"),
     ("jsonb key vs path", "postgres", "SELECT doc->'a' FROM t", "SELECT doc->>'a' FROM t"),
