@@ -35,7 +35,7 @@ from tests.workload import (
     run_repeated_lookups,
     run_workload,
     setup,
-    write_request_log,
+    write_request_log_end_stamped,
 )
 
 pytestmark = pytest.mark.server
@@ -179,7 +179,8 @@ def pg_run(tmp_path_factory) -> PgRun:
         )
         logs = server.stop()
         truth = _merge(extended, simple, more, repeated, repeated_simple)
-        request_log = write_request_log(truth, tmp / "requests.jsonl")
+        # timestamp = end of each request, as the requests-jsonl reader reads it
+        request_log = write_request_log_end_stamped(truth, tmp / "requests.jsonl")
         lines: dict[str, dict[str, int]] = {}
         for fmt in PG_FORMATS:
             log = getattr(logs, fmt)
@@ -193,6 +194,12 @@ def pg_run(tmp_path_factory) -> PgRun:
     yield PgRun(truth, stores, lines)
     for s in stores.values():
         s.close()
+
+
+@pytest.fixture(scope="module")
+def pg_findings(pg_run) -> dict:
+    """format -> ``Store.nplus1()`` of that format's store (computed once)."""
+    return {fmt: s.nplus1() for fmt, s in pg_run.stores.items()}
 
 
 def _loop_lengths(truth: Truth) -> dict[str, int]:
@@ -238,10 +245,9 @@ def test_ingest_pg_log_accounts_for_every_line_and_rejects_none(pg_run, fmt):
 
 
 @pytest.mark.parametrize("fmt", PG_FORMATS)
-def test_nplus1_finds_the_planted_loop_with_its_parent_and_repeat_counts(pg_run, fmt):
+def test_nplus1_finds_the_planted_loop_with_its_parent_and_repeat_counts(pg_run, pg_findings, fmt):
     # source: real PostgreSQL 15 server output; expected values from the loops the workload ran
-    s = pg_run.stores[fmt]
-    findings = s.nplus1()
+    findings = pg_findings[fmt]
     loop = findings[(findings["route"] == LOOP_ROUTE) & (findings["kind"] == "n_plus_one")]
     assert len(loop) == 1, findings[["route", "kind", "child_template"]]
     row = loop.iloc[0]
@@ -254,9 +260,9 @@ def test_nplus1_finds_the_planted_loop_with_its_parent_and_repeat_counts(pg_run,
 
 
 @pytest.mark.parametrize("fmt", PG_FORMATS)
-def test_nplus1_flags_no_route_without_a_loop_or_repeat(pg_run, fmt):
+def test_nplus1_flags_no_route_without_a_loop_or_repeat(pg_findings, fmt):
     # Precision: the workload repeats a statement only on these two routes.
-    findings = pg_run.stores[fmt].nplus1()
+    findings = pg_findings[fmt]
     assert sorted(zip(findings["route"], findings["kind"], strict=True)) == [
         (REPEAT_ROUTE, "redundant"),
         (LOOP_ROUTE, "n_plus_one"),
@@ -264,10 +270,10 @@ def test_nplus1_flags_no_route_without_a_loop_or_repeat(pg_run, fmt):
 
 
 @pytest.mark.parametrize("fmt", PG_FORMATS)
-def test_nplus1_marks_the_same_parameters_repeated_as_redundant(pg_run, fmt):
+def test_nplus1_marks_the_same_parameters_repeated_as_redundant(pg_run, pg_findings, fmt):
     # source: real PostgreSQL 15 server output; each /guests/{id} request sent the same count query
     # with the same guest id REPEATS times, after one guest query
-    findings = pg_run.stores[fmt].nplus1()
+    findings = pg_findings[fmt]
     rows = findings[findings["route"] == REPEAT_ROUTE]
     assert len(rows) == 1
     row = rows.iloc[0]
@@ -298,6 +304,42 @@ def test_routes_queries_per_request_max_equals_the_most_the_route_sent(pg_run, f
         assert routes.loc[route, "queries_per_request_mean"] == pytest.approx(mean(counts)), route
 
 
+def _windows(s: attrib.api.Store) -> dict[str, tuple[int, float, int, int]]:
+    """request id -> (request start µs, elapsed ms, first linked statement start µs, last linked
+    statement end µs), as stored."""
+    rows = s.con.execute(
+        """
+        SELECT r.request_id, epoch_us(r.started_at), r.elapsed_ms,
+               min(epoch_us(st.started_at)),
+               max(epoch_us(st.started_at) + coalesce(st.duration_ms, 0) * 1000)
+        FROM requests r
+        JOIN links l
+          ON l.req_source_id = r.source_id AND l.req_line = r.line AND l.req_seq = r.seq
+        JOIN statements st ON st.source_id = l.source_id AND st.line = l.line AND st.seq = l.seq
+        GROUP BY ALL
+        """
+    ).fetchall()
+    return {r[0]: r[1:] for r in rows}
+
+
+@pytest.mark.parametrize("fmt", PG_FORMATS)
+def test_ingest_pg_log_statements_fall_inside_their_request_window(pg_run, fmt):
+    # source: real PostgreSQL 15 server output. The server writes a duration line once the
+    # statement has ended, stamped to the millisecond (PostgreSQL manual, log_line_prefix: "%m Time
+    # stamp with milliseconds"; the csvlog and jsonlog times of these files have milliseconds too),
+    # so a statement's start (log time - duration) can read up to 1 ms early, and its end (the log
+    # time) is never after the client saw the reply.
+    windows = _windows(pg_run.stores[fmt])
+    assert set(windows) == set(pg_run.truth.counts)
+    for r in pg_run.truth.requests:
+        start_us, elapsed_ms, first_us, last_end_us = windows[r.request_id]
+        true_start_us = round(r.started.timestamp() * 1_000_000)
+        assert abs(start_us - true_start_us) <= 1, r.request_id
+        assert elapsed_ms == pytest.approx(round(r.elapsed_ms, 3), abs=1e-9)
+        assert first_us >= true_start_us - 1000, r.request_id
+        assert last_end_us <= true_start_us + elapsed_ms * 1000 + 1, r.request_id
+
+
 # --- MariaDB ----------------------------------------------------------------------------------
 
 MDB_SCHEMA = [
@@ -326,6 +368,7 @@ class MdbRun:
     sent: Counter[str] = field(default_factory=Counter)  # request id -> statements sent
     loops: dict[str, int] = field(default_factory=dict)  # request id -> per-bunk calls
     records: list[dict] = field(default_factory=list)  # the request log's lines
+    started: dict[str, float] = field(default_factory=dict)  # request id -> client start, epoch s
     store: attrib.api.Store | None = None
     lines: dict[str, int] = field(default_factory=dict)
 
@@ -367,6 +410,7 @@ def _mdb_workload(pymysql, connect_kwargs: dict, run: MdbRun, requests: int = 12
                 return list(cur.fetchall())
 
             started = time.time()
+            run.started[rid] = started
             status = 200
             path = route.replace("{id}", str(hut))
             if route == "/huts":
@@ -456,3 +500,18 @@ def test_nplus1_finds_the_mariadb_loop_with_its_parent_and_repeat_counts(mdb_run
     assert row["requests"] == 3
     assert row["repeats_max"] == max(MDB_BUNKS.values())
     assert row["repeats_mean"] == pytest.approx(mean(MDB_BUNKS.values()), abs=1e-12)
+
+
+def test_ingest_mariadb_statements_fall_inside_their_request_window(mdb_run):
+    # source: real MariaDB server output. The slow log's "SET timestamp=" is the statement's start
+    # in whole seconds (see tests/test_readers_mysql_server.py), so a start can read up to 1 s early;
+    # start + Query_time never passes the moment the client saw the reply.
+    windows = _windows(mdb_run.store)
+    assert set(windows) == set(mdb_run.sent)
+    for rid, started in mdb_run.started.items():
+        start_us, elapsed_ms, first_us, last_end_us = windows[rid]
+        record = next(r for r in mdb_run.records if r["request_id"] == rid)
+        assert elapsed_ms == record["elapsed_ms"]
+        assert abs(start_us - started * 1_000_000) <= 2  # end - elapsed, both rounded to the µs
+        assert first_us >= int(started) * 1_000_000, rid
+        assert last_end_us <= start_us + elapsed_ms * 1000 + 2, rid

@@ -346,3 +346,29 @@ def run_repeated_lookups(
                 )
             )
     return truth
+
+
+def write_request_log_end_stamped(truth: Truth, path: str | Path) -> Path:
+    """Write the requests as JSON lines with ``timestamp`` = the request's END, UTC, ISO 8601.
+
+    The requests-jsonl reader takes ``timestamp`` as the end of a request and its start as timestamp -
+    elapsed_ms (docs/input-formats.md). :func:`write_request_log` puts the start there, so a store made
+    from its file starts every request ``elapsed_ms`` too early; this writer gives back the start
+    exactly (to the microsecond). Fields as in :func:`write_request_log`.
+    """
+    path = Path(path)
+    with open(path, "w", encoding="utf-8") as fh:
+        for r in truth.requests:
+            elapsed_ms = round(r.elapsed_ms, 3)
+            ended = r.started + timedelta(milliseconds=elapsed_ms)
+            record = {
+                "timestamp": ended.isoformat(timespec="microseconds").replace("+00:00", "Z"),
+                "request_id": r.request_id,
+                "method": r.method,
+                "route": r.route,
+                "path": r.path,
+                "status": r.status,
+                "elapsed_ms": elapsed_ms,
+            }
+            fh.write(json.dumps(record) + "\n")
+    return path
