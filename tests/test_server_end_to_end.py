@@ -4,8 +4,9 @@ One throwaway PostgreSQL 15 server (tests/pgserver.py) writes stderr, csvlog and
 the hut-booking workload (tests/workload.py) runs over both protocols, with its N+1 loop on
 ``/huts/{id}/bunks`` and a redundant repeat on ``/guests/{id}``. Before the workload runs, some huts
 lose bunks, so the loop has a different, known length per hut. Each log file goes into its own store
-together with the workload's request log, through :meth:`attrib.api.Store.ingest`; the tests then read
-the store only. One throwaway MariaDB server (tests/mariadbserver.py) runs a small booking workload of
+together with the workload's request log (``write_request_log_end_stamped``: timestamp = end, as the
+requests-jsonl reader reads it), through :meth:`attrib.api.Store.ingest`; the tests then read the store
+only. One throwaway MariaDB server (tests/mariadbserver.py) runs a small booking workload of
 its own through PyMySQL; its slow log and a request log written here go into a fourth store.
 
 Each server starts once per module. Without the server binaries the tests skip, except on CI (CI=true)
