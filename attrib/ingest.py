@@ -331,7 +331,8 @@ def ingest(
             _check_kind(readers.get(fmt), kind, fmt)
     parse_tz(options.tz)
     results = [ingest_file(con, path, kind, fmt, options, progress) for path, kind, fmt in plan]
-    added = join.link(con) if any(r.status != ALREADY for r in results) else 0
+    # always link: a run killed between a file's commit and this step left statements unlinked
+    added = join.link(con)
     return IngestResult(results, added)
 
 
