@@ -4,7 +4,7 @@ One throwaway PostgreSQL 15 server (tests/pgserver.py) writes stderr, csvlog and
 the hut-booking workload (tests/workload.py) runs over both protocols, with its N+1 loop on
 ``/huts/{id}/bunks`` and a redundant repeat on ``/guests/{id}``. Before the workload runs, some huts
 lose bunks, so the loop has a different, known length per hut. Each log file goes into its own store
-together with the workload's request log (``write_request_log_end_stamped``: timestamp = end, as the
+together with the workload's request log (``write_request_log``: timestamp = end, as the
 requests-jsonl reader reads it), through :meth:`attrib.api.Store.ingest`; the tests then read the store
 only. One throwaway MariaDB server (tests/mariadbserver.py) runs a small booking workload of
 its own through PyMySQL; its slow log and a request log written here go into a fourth store.
@@ -36,7 +36,7 @@ from tests.workload import (
     run_repeated_lookups,
     run_workload,
     setup,
-    write_request_log_end_stamped,
+    write_request_log,
 )
 
 pytestmark = pytest.mark.server
@@ -181,7 +181,7 @@ def pg_run(tmp_path_factory) -> PgRun:
         logs = server.stop()
         truth = _merge(extended, simple, more, repeated, repeated_simple)
         # timestamp = end of each request, as the requests-jsonl reader reads it
-        request_log = write_request_log_end_stamped(truth, tmp / "requests.jsonl")
+        request_log = write_request_log(truth, tmp / "requests.jsonl")
         lines: dict[str, dict[str, int]] = {}
         for fmt in PG_FORMATS:
             log = getattr(logs, fmt)

@@ -275,21 +275,25 @@ class _Site:
 
 
 def write_request_log(truth: Truth, path: str | Path) -> Path:
-    """Write the workload's requests as JSON lines (timestamp = request start, UTC, ISO 8601).
+    """Write the requests as JSON lines with ``timestamp`` = the request's END, UTC, ISO 8601.
 
-    Fields: timestamp, request_id, method, route, path, status, elapsed_ms.
+    The requests-jsonl reader takes ``timestamp`` as the end of a request and its start as timestamp -
+    elapsed_ms (docs/input-formats.md), so a store made from this file gets back each request's start
+    to the microsecond. Fields: timestamp, request_id, method, route, path, status, elapsed_ms.
     """
     path = Path(path)
     with open(path, "w", encoding="utf-8") as fh:
         for r in truth.requests:
+            elapsed_ms = round(r.elapsed_ms, 3)
+            ended = r.started + timedelta(milliseconds=elapsed_ms)
             record = {
-                "timestamp": r.started.isoformat(timespec="microseconds").replace("+00:00", "Z"),
+                "timestamp": ended.isoformat(timespec="microseconds").replace("+00:00", "Z"),
                 "request_id": r.request_id,
                 "method": r.method,
                 "route": r.route,
                 "path": r.path,
                 "status": r.status,
-                "elapsed_ms": round(r.elapsed_ms, 3),
+                "elapsed_ms": elapsed_ms,
             }
             fh.write(json.dumps(record) + "\n")
     return path
@@ -346,29 +350,3 @@ def run_repeated_lookups(
                 )
             )
     return truth
-
-
-def write_request_log_end_stamped(truth: Truth, path: str | Path) -> Path:
-    """Write the requests as JSON lines with ``timestamp`` = the request's END, UTC, ISO 8601.
-
-    The requests-jsonl reader takes ``timestamp`` as the end of a request and its start as timestamp -
-    elapsed_ms (docs/input-formats.md). :func:`write_request_log` puts the start there, so a store made
-    from its file starts every request ``elapsed_ms`` too early; this writer gives back the start
-    exactly (to the microsecond). Fields as in :func:`write_request_log`.
-    """
-    path = Path(path)
-    with open(path, "w", encoding="utf-8") as fh:
-        for r in truth.requests:
-            elapsed_ms = round(r.elapsed_ms, 3)
-            ended = r.started + timedelta(milliseconds=elapsed_ms)
-            record = {
-                "timestamp": ended.isoformat(timespec="microseconds").replace("+00:00", "Z"),
-                "request_id": r.request_id,
-                "method": r.method,
-                "route": r.route,
-                "path": r.path,
-                "status": r.status,
-                "elapsed_ms": elapsed_ms,
-            }
-            fh.write(json.dumps(record) + "\n")
-    return path
