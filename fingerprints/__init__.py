@@ -88,7 +88,7 @@ def _shapes(
     lexer = LEXERS[dialect]
     masker = Masker(lexer, with_literals)
     folds = lexer.folds_case
-    mask, lits = masker.mask, masker.literals
+    mask = masker.mask
     raw: dict[str, tuple[int, tuple[str, ...]]] = {}
     by_mask: dict[str, int] = {}
     index: dict[str, int] = {}
@@ -109,11 +109,9 @@ def _shapes(
                 key = sql[:cut]
         hit = raw.get(key)
         if hit is None:
-            lits.clear()
             masked = mask(key)
             if masker.open and key is not sql:
                 # The cut fell inside a string or comment: mask the whole statement instead.
-                lits.clear()
                 masked = mask(sql)
                 key = sql
             i = by_mask.get(masked)
@@ -127,7 +125,7 @@ def _shapes(
                 if len(by_mask) >= _RAW_CACHE_MAX:
                     by_mask.clear()
                 by_mask[masked] = i
-            hit = (i, tuple(lits) if with_literals else none)
+            hit = (i, masker.values if with_literals else none)
             if len(raw) >= _RAW_CACHE_MAX:
                 raw.clear()
             raw[key] = hit

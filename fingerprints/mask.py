@@ -230,31 +230,41 @@ class Masker:
     def __init__(self, lexer: Lexer, keep_literals: bool) -> None:
         self.lexer = lexer
         self.keep_literals = keep_literals
-        self.literals: list[str] = []
+        self.values: tuple[str, ...] = ()  # literal tokens of the last statement (keep_literals)
         self.open = False
         actions = lexer.actions
         found: list[str | None] = []
         self._found = found
         append = found.append
+        list_items = lexer.list_item.finditer
 
         def replace(m: re.Match[str]) -> str:
             action = actions[m.lastindex]  # type: ignore[index]
-            if action == LITERAL:
-                if keep_literals:
-                    token = m.group()
-                    append("-" + token[1:].strip() if token[0] == "-" else token)
-                return MASK
-            if action == PARAM:
-                if keep_literals:
-                    append(None)  # a mask that carries no value
+            if action == LITERAL or action == PARAM:
                 return MASK
             if action == DROP:
                 return " "
             if action == KEEP:
                 return m.group()
             if action == IN_LIST:
-                if not keep_literals:
-                    return "('?')"
+                return "('?')"
+            self.open = True
+            return MASK if action == LITERAL_OPEN else " "
+
+        def replace_keeping(m: re.Match[str]) -> str:
+            action = actions[m.lastindex]  # type: ignore[index]
+            if action == LITERAL:
+                token = m.group()
+                append(token if token[0] != "-" else "-" + token[1:].strip())
+                return MASK
+            if action == PARAM:
+                append(None)  # a mask that carries no value
+                return MASK
+            if action == DROP:
+                return " "
+            if action == KEEP:
+                return m.group()
+            if action == IN_LIST:
                 count = 0
                 for item in list_items(m.group(1)):
                     token = item.group()
@@ -262,19 +272,17 @@ class Masker:
                     if token[0] in "$?%":
                         append(None)
                     else:
-                        append("-" + token[1:].strip() if token[0] == "-" else token)
+                        append(token if token[0] != "-" else "-" + token[1:].strip())
                 # One mask per value keeps the literal order; finish() collapses the list.
                 return "(" + ", ".join([MASK] * count) + ")"
             self.open = True
             if action == LITERAL_OPEN:
-                if keep_literals:
-                    append(m.group())
+                append(m.group())
                 return MASK
             return " "
 
-        list_items = lexer.list_item.finditer
         self._sub = lexer.pattern.sub
-        self._replace = replace
+        self._replace = replace_keeping if keep_literals else replace
 
     def mask(self, sql: str) -> str:
         """Literals to ``'?'`` and comments to a space; nothing else is changed."""
@@ -284,17 +292,19 @@ class Masker:
         found = self._found
         found.clear()
         masked = self._sub(self._replace, sql)
-        literals = self.literals
-        literals.clear()
         low = masked.lower()
         if "null" in low or "true" in low or "false" in low:
             tokens = iter(found)
+            values = []
             for m in _IN_ORDER.finditer(masked):
                 token = next(tokens, None) if m.group() == MASK else m.group()
                 if token is not None:
-                    literals.append(token)
+                    values.append(token)
+            self.values = tuple(values)
+        elif None in found:
+            self.values = tuple([t for t in found if t is not None])
         else:
-            literals.extend(t for t in found if t is not None)
+            self.values = tuple(found)
         return masked
 
     def shape(self, sql: str) -> str:
