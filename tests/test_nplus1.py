@@ -252,3 +252,17 @@ def test_fixed_costs_sample_is_bounded_and_deterministic(trips):
     assert first["G"].method == "median" and first["G"].fixed_ms == pytest.approx(0.2)
     assert math.isnan(first["nothing"].fixed_ms)
     assert nplus1.fixed_costs(trips, []) == {}
+
+
+def test_find_with_positions_too_wide_to_pack_uses_struct_order(con):
+    # A statement at seq 70000 does not fit the packed HUGEINT order key (16 bits for seq), so the
+    # order falls back to a STRUCT; the findings must not change.
+    fill_huts(con)
+    assert "HUGEINT" in nplus1._order_key(con)
+    packed = nplus1.find(con)
+    con.execute(
+        "INSERT INTO statements (source_id, line, seq, started_at, duration_ms, template_id)"
+        " VALUES (2, 99, 70000, '2026-05-04 11:00:00', 1, 'zz')"
+    )
+    assert nplus1._order_key(con).startswith("{{")
+    pd.testing.assert_frame_equal(nplus1.find(con), packed)
