@@ -250,23 +250,35 @@ def _order_key(con: duckdb.DuckDBPyConnection) -> str:
 def _pairs_sql(where: str, key: str) -> str:
     """One row per candidate (request, template): calls, kind, predecessor, wasted time, gaps.
 
-    One window pass over the linked statements, ordered by ``key`` (see :func:`_order_key`) inside
-    each request, gives every statement its predecessor; one GROUP BY per (request, template) then
-    keeps the candidates and reads the predecessor and duration of their first and last call.
+    A lean count per (request, template) finds the candidates; one window pass over the statements
+    of requests with a candidate, ordered by ``key`` (see :func:`_order_key`), gives every statement
+    its predecessor; one GROUP BY over the candidates' calls reads the predecessor and duration of
+    their first and last call.
     """
-    k = key.format(a="s.")
+    k = key.format(a="")
     return f"""
     WITH req AS (SELECT r.source_id, r.line, r.seq, r.route FROM requests r WHERE {where}),
-    st AS (
+    linked AS NOT MATERIALIZED (
         SELECT l.req_source_id AS rs, l.req_line AS rl, l.req_seq AS rq,
-               s.started_at, s.duration_ms, s.template_id, s.param_hash, {k} AS key,
-               lag(s.template_id) OVER w AS prev_template_id,
-               lag(s.rows) OVER w AS prev_rows
+               s.source_id, s.line, s.seq, s.started_at, s.duration_ms, s.rows,
+               s.template_id, s.param_hash
         FROM links l
         SEMI JOIN req
           ON l.req_source_id = req.source_id AND l.req_line = req.line AND l.req_seq = req.seq
         JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
-        WINDOW w AS (PARTITION BY l.req_source_id, l.req_line, l.req_seq ORDER BY {k})
+    ),
+    -- candidates first (a lean count), so that ordering and the detailed aggregates only touch
+    -- the requests and calls that matter
+    cand AS (
+        SELECT rs, rl, rq, template_id FROM linked
+        GROUP BY rs, rl, rq, template_id HAVING count(*) >= ?
+    ),
+    st AS (
+        SELECT rs, rl, rq, started_at, duration_ms, template_id, param_hash, {k} AS key,
+               lag(template_id) OVER w AS prev_template_id,
+               lag(rows) OVER w AS prev_rows
+        FROM linked SEMI JOIN (SELECT DISTINCT rs, rl, rq FROM cand) c USING (rs, rl, rq)
+        WINDOW w AS (PARTITION BY rs, rl, rq ORDER BY {k})
     ),
     pairs AS (
         SELECT rs, rl, rq, template_id,
@@ -281,9 +293,8 @@ def _pairs_sql(where: str, key: str) -> str:
                arg_min_null(duration_ms, key) AS first_ms,
                arg_max_null(duration_ms, key) AS last_ms,
                coalesce(sum(duration_ms), 0) AS ms
-        FROM st
+        FROM st SEMI JOIN cand USING (rs, rl, rq, template_id)
         GROUP BY rs, rl, rq, template_id
-        HAVING count(*) >= ?
     )
     SELECT req.route, p.rs, p.rl, p.rq, p.template_id, p.n, p.kind,
            p.prev_template_id, p.prev_rows,
