@@ -11,6 +11,8 @@ After all files, :func:`attrib.join.link` links new statements to requests.
 from __future__ import annotations
 
 import os
+import shutil
+import tempfile
 import time
 from collections import Counter, deque
 from collections.abc import Callable, Iterable, Iterator, Sequence
@@ -28,6 +30,7 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 import duckdb
 import pandas as pd
 import pyarrow as pa
+import pyarrow.parquet as pq
 
 from attrib import join, readers, sources
 from attrib import store as _store
@@ -546,6 +549,11 @@ class _Writer:
             row[0] for row in con.execute("SELECT template_id FROM templates").fetchall()
         }
         self._seq = {"statements": (0, -1), "requests": (0, -1)}
+        # Statement chunks are staged as Parquet files and inserted with one INSERT at the end:
+        # DuckDB holds the rows of many small inserts of an open transaction in memory, but streams
+        # one large INSERT ... SELECT (measured in tests/bench/bench_ingest.py).
+        self._stage_dir: str | None = None
+        self._staged: list[str] = []
         self._pending: deque[tuple[Future[Digest], list[Statement]]] = deque()
         self._pool: ProcessPoolExecutor | None = None
         if options.workers > 0:
@@ -614,13 +622,11 @@ class _Writer:
                 ),
             }
         )
-        request_id, trace_id = self._id_sql
-        self._insert(
-            f"""INSERT INTO statements SELECT {self.source_id}, line, seq, started_at,
-                    duration_ms, rows, template_id, param_hash, {request_id}, {trace_id},
-                    session, db_user, db_name, error, raw_sql FROM _chunk""",
-            table,
-        )
+        if self._stage_dir is None:
+            self._stage_dir = tempfile.mkdtemp(prefix="attrib-ingest-")
+        staged = os.path.join(self._stage_dir, f"{len(self._staged):06d}.parquet")
+        pq.write_table(table, staged)
+        self._staged.append(staged)
         lines = sum(map(_LINES, chunk))
         self.counts["ingested"] += lines
         self.counts["statements"] += len(chunk)
@@ -711,6 +717,14 @@ class _Writer:
         while self._pending:
             future, done = self._pending.popleft()
             self._store_statements(done, future.result())
+        if self._staged:
+            request_id, trace_id = self._id_sql
+            self.con.execute(
+                f"""INSERT INTO statements SELECT {self.source_id}, line, seq, started_at,
+                        duration_ms, rows, template_id, param_hash, {request_id}, {trace_id},
+                        session, db_user, db_name, error, raw_sql FROM read_parquet(?)""",
+                [self._staged],
+            )
         self.flush_requests()
         self.flush_rejects()
         if self.skips:
@@ -727,10 +741,13 @@ class _Writer:
             self.counts["skipped"] += sum(self.skips.values())
 
     def close(self) -> None:
-        """Stop the worker pool, if any."""
+        """Stop the worker pool, if any, and remove the staged chunks."""
         if self._pool is not None:
             self._pool.shutdown(wait=True, cancel_futures=True)
             self._pool = None
+        if self._stage_dir is not None:
+            shutil.rmtree(self._stage_dir, ignore_errors=True)
+            self._stage_dir = None
 
     # -- helpers ----------------------------------------------------------------------------
     def _insert(self, sql: str, table: pa.Table) -> None:

@@ -15,7 +15,7 @@ import duckdb
 
 from attrib.errors import StoreError, StoreLockedError, StoreVersionError
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 _V1 = """
 CREATE TABLE meta (key VARCHAR PRIMARY KEY, value VARCHAR NOT NULL);
@@ -96,8 +96,64 @@ CREATE TABLE links (
 );
 """
 
+# Version 2: requests, statements and links lose their PRIMARY KEY constraints. DuckDB keeps the
+# index of a key in memory, and the rows of an open transaction too, so a multi-million-line file grew
+# the ingest's memory with its size. Uniqueness of (source_id, line, seq) holds by construction (ingest
+# numbers records per file; join links only unlinked statements).
+_V2_TABLES = {
+    "requests": """(
+    source_id  INTEGER NOT NULL,
+    line       BIGINT NOT NULL,
+    seq        INTEGER NOT NULL,
+    request_id VARCHAR,
+    trace_id   VARCHAR,
+    started_at TIMESTAMP NOT NULL,
+    elapsed_ms DOUBLE NOT NULL,
+    method     VARCHAR,
+    route      VARCHAR NOT NULL,
+    path       VARCHAR,
+    status     INTEGER
+)""",
+    "statements": """(
+    source_id   INTEGER NOT NULL,
+    line        BIGINT NOT NULL,
+    seq         INTEGER NOT NULL,
+    started_at  TIMESTAMP NOT NULL,
+    duration_ms DOUBLE,
+    rows        BIGINT,
+    template_id VARCHAR NOT NULL,
+    param_hash  UBIGINT,
+    request_id  VARCHAR,
+    trace_id    VARCHAR,
+    session     VARCHAR,
+    db_user     VARCHAR,
+    db_name     VARCHAR,
+    error       VARCHAR,
+    raw_sql     VARCHAR
+)""",
+    "links": """(
+    source_id     INTEGER NOT NULL,
+    line          BIGINT NOT NULL,
+    seq           INTEGER NOT NULL,
+    req_source_id INTEGER NOT NULL,
+    req_line      BIGINT NOT NULL,
+    req_seq       INTEGER NOT NULL
+)""",
+}
+
+
+def _v2(con: duckdb.DuckDBPyConnection) -> None:
+    """Rebuild the three row tables without primary keys, keeping every row."""
+    for table, columns in _V2_TABLES.items():
+        con.execute(f"CREATE TABLE {table}_v2 {columns}")
+        con.execute(f"INSERT INTO {table}_v2 SELECT * FROM {table}")
+        con.execute(f"DROP TABLE {table}")
+        con.execute(f"ALTER TABLE {table}_v2 RENAME TO {table}")
+
+
 MIGRATIONS: list[tuple[int, str, Callable[[duckdb.DuckDBPyConnection], None]]] = [
     (1, "initial schema", lambda con: con.execute(_V1)),
+    (2, "no primary keys on requests, statements, links", _v2),
 ]
 
 
