@@ -376,3 +376,40 @@ def test_route_detail_route_is_exact_not_a_pattern(huts):
 def test_route_detail_route_with_no_statements_has_empty_listings(huts):
     detail = attribute.route_detail(huts, "/search", since=datetime(2026, 5, 4, 10, 0, 3))
     assert detail.requests == 1 and detail.templates.empty and detail.nplus1.empty
+
+
+def test_templates_without_recorded_time_share_routes_by_calls(con):
+    # Template n: 3 calls with no duration, 2 in R1 (/a) and 1 unlinked: shares by calls 2/3, 1/3.
+    con.execute(
+        "INSERT INTO requests VALUES (1, 1, 0, 'R1', NULL, '2026-05-04 10:00:00', 5, 'GET', '/a',"
+        " NULL, 200)"
+    )
+    for line in (1, 2, 3):
+        con.execute(
+            "INSERT INTO statements (source_id, line, seq, started_at, template_id)"
+            " VALUES (2, ?, 0, '2026-05-04 10:00:00', 'n')",
+            [line],
+        )
+    con.execute("INSERT INTO links VALUES (2, 1, 0, 1, 1, 0), (2, 2, 0, 1, 1, 0)")
+    row = attribute.templates(con).iloc[0]
+    assert row["total_ms"] == 0.0 and np.isnan(row["share"]) and row["calls_per_request"] == 2.0
+    assert row["routes"] == [
+        {"route": "/a", "share": pytest.approx(2 / 3)},
+        {"route": NO_REQUEST, "share": pytest.approx(1 / 3)},
+    ]
+
+
+def test_store_methods_return_the_same_listings_as_the_stage_functions():
+    import attrib
+
+    s = attrib.open(":memory:")
+    fill_huts(s.con)
+    pd.testing.assert_frame_equal(s.routes(top=1), attribute.routes(s.con, top=1))
+    pd.testing.assert_frame_equal(s.templates(), attribute.templates(s.con))
+    detail = s.route("/huts/{id}")
+    assert isinstance(detail, attribute.RouteDetail)
+    pd.testing.assert_frame_equal(
+        detail.templates, attribute.route_templates(s.con, "/huts/{id}")[1]
+    )
+    assert list(s.nplus1(min_repeats=2)["requests"]) == [2, 1]
+    s.close()
