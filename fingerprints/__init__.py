@@ -18,7 +18,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 
 from fingerprints.errors import FingerprintError
-from fingerprints.mask import LEXERS, Masker, finish
+from fingerprints.mask import LEXERS, Lexer, Masker, finish
 from fingerprints.normalize import normalize
 
 __all__ = [
@@ -27,6 +27,7 @@ __all__ = [
     "FingerprintError",
     "fingerprint",
     "fingerprint_many",
+    "template_id",
     "DIALECTS",
 ]
 
@@ -65,7 +66,7 @@ def template_id(template: str) -> str:
     return hashlib.blake2b(data, digest_size=8).hexdigest()
 
 
-def _lexer(dialect: str):
+def _lexer(dialect: str) -> Lexer:
     try:
         return LEXERS[dialect]
     except (KeyError, TypeError):
