@@ -3,7 +3,7 @@
 >>> import attrib
 >>> s = attrib.open(":memory:")
 >>> s.schema_version
-1
+2
 """
 
 from __future__ import annotations
