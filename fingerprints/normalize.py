@@ -73,18 +73,16 @@ def mask_values(tree: exp.Expr, dialect: str) -> exp.Expr:
 
 
 def collapse_lists(tree: exp.Expr, dialect: str) -> exp.Expr:
-    """IN lists of masked values keep one; repeated identical VALUES rows keep one."""
-    for node in tree.find_all(exp.In):
+    """IN lists, ARRAY[...] constructors and multi-row VALUES keep one copy of each distinct item,
+    so ``IN (?, ?, ?)``, ``ANY(ARRAY[?, ?])`` and ``VALUES (?, ?), (?, ?)`` lose their length."""
+    for node in tree.find_all(exp.In, exp.Array, exp.Values):
         items = node.expressions
-        if len(items) > 1 and all(_is_mask(i) for i in items):
-            node.set("expressions", [items[0]])
-    for node in tree.find_all(exp.Values):
-        rows = node.expressions
-        if len(rows) > 1:
+        if len(items) > 1:
             seen: dict[str, exp.Expr] = {}
-            for row in rows:
-                seen.setdefault(row.sql(dialect=dialect), row)
-            node.set("expressions", list(seen.values()))
+            for item in items:
+                seen.setdefault(item.sql(dialect=dialect), item)
+            if len(seen) < len(items):
+                node.set("expressions", list(seen.values()))
     return tree
 
 

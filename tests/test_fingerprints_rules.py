@@ -190,6 +190,18 @@ SAME = [
         "SELECT a FROM t WHERE id IN (4)",
     ),
     (
+        "IN list of rows",
+        "postgres",
+        "SELECT a FROM t WHERE (x, y) IN ((1, 'a'), (2, 'b'))",
+        "SELECT a FROM t WHERE (x, y) IN ((3, 'c'))",
+    ),
+    (
+        "ARRAY length (lists sent as arrays)",
+        "postgres",
+        "SELECT a FROM t WHERE id = ANY(ARRAY[1, 2, 3])",
+        "SELECT a FROM t WHERE id = ANY(ARRAY[4])",
+    ),
+    (
         "NOT IN list length",
         "postgres",
         "SELECT a FROM t WHERE id NOT IN (1, 2)",
@@ -402,6 +414,18 @@ DIFFERENT = [
         "postgres",
         "SELECT coalesce(a, 1) FROM t",
         "SELECT coalesce(a, 1, 2) FROM t",
+    ),
+    (
+        "ARRAY of values vs of a column",
+        "postgres",
+        "SELECT ARRAY[1, 2] FROM t",
+        "SELECT ARRAY[1, b] FROM t",
+    ),
+    (
+        "IN list with a column",
+        "postgres",
+        "SELECT a FROM t WHERE x IN (1, 2)",
+        "SELECT a FROM t WHERE x IN (1, y)",
     ),
     (
         "VALUES row width",
