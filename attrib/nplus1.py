@@ -228,23 +228,29 @@ def pick_parent(graph: nx.DiGraph, child: str, kind: str) -> str | None:
 
 
 def _order_key(con: duckdb.DuckDBPyConnection) -> str:
-    """SQL for a value that sorts a request's statements by (started_at, source_id, line, seq).
+    """SQL for a value that sorts a request's statements by (source_id, line, started_at, seq).
 
-    A HUGEINT (microseconds in the high 64 bits, then 15 bits of source id, 32 of line, 16 of
-    seq) when every position fits those widths, which one cheap scan checks; otherwise a STRUCT of
-    the four columns, which sorts the same way but compares several times slower.
+    Log order comes first: within one statement log a session's statements appear in the order they
+    ran, while their start times are log times truncated to milliseconds minus durations measured in
+    microseconds, so two statements that end in the same millisecond can look swapped by time. The
+    start time then orders statements that share a line (OTLP spans of one export batch).
+
+    A HUGEINT (15 bits of source id, 32 of line, 64 of start microseconds, 16 of seq) when every
+    value fits those widths, which one cheap scan checks; otherwise a STRUCT of the four columns,
+    which sorts the same way but compares several times slower.
     """
     fits = con.execute(
         "SELECT coalesce(min(source_id) >= 0 AND max(source_id) < 32768 AND min(line) >= 0"
-        " AND max(line) < 4294967296 AND min(seq) >= 0 AND max(seq) < 65536, true)"
+        " AND max(line) < 4294967296 AND min(seq) >= 0 AND max(seq) < 65536"
+        " AND min(epoch_us(started_at)) >= 0, true)"
         " FROM statements"
     ).fetchone()[0]
     if fits:
         return (
-            "((epoch_us({a}started_at)::HUGEINT << 64) | ({a}source_id::HUGEINT << 48)"
-            " | ({a}line::HUGEINT << 16) | {a}seq::HUGEINT)"
+            "(({a}source_id::HUGEINT << 112) | ({a}line::HUGEINT << 80)"
+            " | (epoch_us({a}started_at)::HUGEINT << 16) | {a}seq::HUGEINT)"
         )
-    return "{{'t': {a}started_at, 's': {a}source_id, 'l': {a}line, 'q': {a}seq}}"
+    return "{{'s': {a}source_id, 'l': {a}line, 't': {a}started_at, 'q': {a}seq}}"
 
 
 def _pairs_sql(where: str, key: str) -> str:

@@ -266,3 +266,33 @@ def test_find_with_positions_too_wide_to_pack_uses_struct_order(con):
     )
     assert nplus1._order_key(con).startswith("{{")
     pd.testing.assert_frame_equal(nplus1.find(con), packed)
+
+
+def test_find_parent_survives_millisecond_log_times_that_reorder_by_start(tmp_path):
+    """PostgreSQL stamps the END of a statement in milliseconds; start = end - duration can put a
+    later statement before an earlier one (seen on real PostgreSQL 15 output). Log order wins."""
+    import attrib
+    from fingerprints import fingerprint
+
+    tag = " /*request_id='r1'*/"
+    bunks = "SELECT id FROM bunks WHERE hut_id = 4"
+    per_bunk = "SELECT count(*) FROM bookings WHERE bunk_id = {}"
+    lines = [
+        f"2026-11-30 09:00:00.005 UTC [77] app@huts LOG:  duration: 0.100 ms  statement: {bunks}{tag}",
+        *(
+            f"2026-11-30 09:00:00.00{5 + i} UTC [77] app@huts LOG:  duration: 0.300 ms  "
+            f"statement: {per_bunk.format(i)}{tag}"
+            for i in range(3)
+        ),
+    ]
+    (tmp_path / "pg.log").write_text("\n".join(lines) + "\n")
+    (tmp_path / "req.jsonl").write_text(
+        '{"timestamp": "2026-11-30T09:00:00.010Z", "request_id": "r1", "method": "GET", '
+        '"route": "/huts/{id}/bunks", "path": "/huts/4/bunks", "status": 200, "elapsed_ms": 9}\n'
+    )
+    with attrib.open(tmp_path / "s.duckdb") as s:
+        s.ingest(requests=[tmp_path / "req.jsonl"], queries=[tmp_path / "pg.log"])
+        found = s.nplus1()
+    assert len(found) == 1
+    assert found.iloc[0]["child_template_id"] == fingerprint(per_bunk.format(1)).id
+    assert found.iloc[0]["parent_template_id"] == fingerprint(bunks).id
