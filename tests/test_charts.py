@@ -127,3 +127,36 @@ def test_save_refuses_unknown_suffix(tmp_path):
     fig = charts.ecdf_pair(np.array([1.0]), np.array([2.0]), title="t", xlabel="x")
     with pytest.raises(charts.ChartError, match=r"\.png or \.svg"):
         charts.save(fig, tmp_path / "c.jpg")
+
+
+@pytest.mark.parametrize(
+    ("kind", "options"),
+    [
+        ("fraction", {}),
+        ("histogram", {"by_route": True}),
+        ("timeline", {}),
+        ("heatmap", {}),
+        ("nplus1", {}),
+        (
+            "compare",
+            {
+                "before": "2026-11-30T09:00/2026-11-30T10:00",
+                "after": "2026-11-30T10:00/2026-11-30T11:00",
+            },
+        ),
+        ("whatif", {"scenario": ["remove=0123456789abcdef"]}),
+    ],
+)
+def test_every_chart_kind_on_an_empty_store_says_what_is_missing(kind, options):
+    import attrib
+    from attrib.errors import AttribError
+
+    with attrib.open(":memory:") as s, pytest.raises(AttribError) as error:
+        s.chart(kind, **options)
+    message = str(error.value)
+    assert "\n" not in message and (
+        "nothing to plot" in message
+        or "no requests" in message
+        or "not in the store" in message
+        or "unknown template" in message
+    )
