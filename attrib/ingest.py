@@ -35,7 +35,7 @@ import pyarrow.parquet as pq
 from attrib import join, readers, sources
 from attrib import store as _store
 from attrib.comments import request_keys
-from attrib.errors import AttribError, FormatError, TimezoneError, UsageError
+from attrib.errors import AttribError, FormatError, StoreError, TimezoneError, UsageError
 from attrib.records import ReadOptions, Reject, Request, Skip, Statement
 
 DIALECTS = ("postgres", "mysql", "sqlite", "generic")
@@ -335,7 +335,14 @@ def ingest(
     parse_tz(options.tz)
     results = [ingest_file(con, path, kind, fmt, options, progress) for path, kind, fmt in plan]
     # always link: a run killed between a file's commit and this step left statements unlinked
-    added = join.link(con)
+    try:
+        added = join.link(con)
+    except duckdb.Error as exc:
+        reason = (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+        raise StoreError(
+            f"linking statements to requests failed, the store could not be written ({reason}); "
+            "make room and run the same ingest again"
+        ) from exc
     return IngestResult(results, added)
 
 
@@ -428,13 +435,20 @@ def ingest_file(
         )
         con.execute("COMMIT")
     except AttribError as exc:
-        con.execute("ROLLBACK")
+        _rollback(con)
         message = str(exc)
         if not message.startswith(name):
             raise type(exc)(f"{name}: {message}") from None
         raise
+    except duckdb.Error as exc:  # e.g. a full disk: the store could not be written
+        _rollback(con)
+        reason = (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+        raise StoreError(
+            f"{name}: not stored, the store could not be written ({reason}); "
+            "make room and run the same ingest again"
+        ) from exc
     except BaseException:
-        con.execute("ROLLBACK")
+        _rollback(con)
         raise
     finally:
         if "writer" in locals():
@@ -824,6 +838,14 @@ def _dialect(
     raise UsageError(
         f"this store holds {stored} statements; {wanted} statements need a store of their own"
     )
+
+
+def _rollback(con: duckdb.DuckDBPyConnection) -> None:
+    """Roll back the file's transaction; a failed COMMIT (full disk) has ended it already."""
+    try:
+        con.execute("ROLLBACK")
+    except duckdb.TransactionException:
+        pass
 
 
 def _now() -> datetime:

@@ -233,8 +233,16 @@ def _migrate(con: duckdb.DuckDBPyConnection, target: str, read_only: bool) -> No
                 "UPDATE meta SET value = ? WHERE key = 'schema_version'", [str(SCHEMA_VERSION)]
             )
         con.execute("COMMIT")
-    except BaseException:
-        con.execute("ROLLBACK")
+    except BaseException as exc:
+        try:
+            con.execute("ROLLBACK")
+        except duckdb.TransactionException:
+            pass  # a failed COMMIT (full disk) has ended the transaction already
+        if isinstance(exc, duckdb.Error):
+            raise StoreError(
+                f"{target}: cannot create or upgrade the store ({_first_line(exc)}); "
+                "nothing was changed"
+            ) from exc
         raise
 
 

@@ -9,6 +9,7 @@ import importlib
 import sys
 
 import click
+import duckdb
 
 from attrib import __version__
 from attrib.errors import AttribError
@@ -81,6 +82,12 @@ def main(argv: list[str] | None = None) -> None:
             raise
         click.echo(f"Error: {exc}", err=True)
         sys.exit(exc.exit_code)
+    except duckdb.Error as exc:  # the store failed under us (full disk, I/O error)
+        if debug:
+            raise
+        reason = (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+        click.echo(f"Error: the store could not be read or written: {reason}", err=True)
+        sys.exit(4)
     except OSError as exc:
         if debug:
             raise

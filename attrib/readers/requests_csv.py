@@ -15,6 +15,7 @@ from __future__ import annotations
 import csv
 from collections.abc import Iterable, Iterator
 
+from attrib.errors import MappingError
 from attrib.readers.requests_jsonl import EXCERPT, MAX_LINE, FieldPlan, build_request
 from attrib.records import ReadOptions, Record, Reject, Skip
 
@@ -34,7 +35,10 @@ def sniff(head: list[str]) -> bool:
     header = _header(header_line, delimiter)
     if header is None or len(header) < 3:
         return False
-    return FieldPlan.resolve([dict.fromkeys(header, "")], {}, "request log").complete
+    try:
+        return FieldPlan.resolve([dict.fromkeys(header, "")], {}, "request log").complete
+    except MappingError:  # e.g. no duration column: not this format (detection must not fail)
+        return False
 
 
 def read(lines: Iterable[tuple[int, str]], options: ReadOptions) -> Iterator[Record]:
