@@ -58,8 +58,9 @@ def detect(head: list[str], kind: str, source: str) -> ModuleType:
         module = get(name)
         if module.sniff(head):
             return module
+    option = "--requests-format" if kind == "requests" else "--queries-format"
     raise FormatError(
-        f"{source}: cannot tell the log format from its first lines; pass --format "
+        f"{source}: cannot tell the log format from its first lines; pass {option} "
         f"(one of: {', '.join(formats(kind))})"
     )
 
