@@ -688,7 +688,11 @@ class _Writer:
                     "route": pa.array(
                         [r.route or r.path or "(unknown)" for r in keep], pa.string()
                     ),
-                    "path": pa.array([r.path for r in keep], pa.string()),
+                    # a path holds values (/users/ada@example.org): kept only with --keep-raw
+                    "path": pa.array(
+                        [r.path for r in keep] if self.options.keep_raw else [None] * len(keep),
+                        pa.string(),
+                    ),
                     "status": pa.array([r.status for r in keep], pa.int32()),
                 }
             )
