@@ -42,6 +42,7 @@ DIALECTS = ("postgres", "mysql", "sqlite", "generic")
 ID_SOURCES = ("comment", "field", "trace")
 EXCERPT_MAX = 200
 PROGRESS_EVERY = 20_000  # records between two progress reports
+STAGE_PREFIX = "attrib-ingest-"  # + pid: staged statement chunks in the temporary directory
 ALREADY = "already ingested (same SHA-256)"
 NUL_REASON = "NUL bytes"
 
@@ -333,6 +334,7 @@ def ingest(
         if fmt is not None:
             _check_kind(readers.get(fmt), kind, fmt)
     parse_tz(options.tz)
+    remove_stale_staging()
     results = [ingest_file(con, path, kind, fmt, options, progress) for path, kind, fmt in plan]
     # always link: a run killed between a file's commit and this step left statements unlinked
     try:
@@ -344,6 +346,36 @@ def ingest(
             "make room and run the same ingest again"
         ) from exc
     return IngestResult(results, added)
+
+
+def remove_stale_staging(tmp: str | None = None) -> int:
+    """Delete staging folders left by killed ingests (their process is gone); return how many.
+
+    An ingest stages statement chunks in ``attrib-ingest-<pid>-*`` folders of the temporary
+    directory and deletes them when it ends; SIGKILL leaves them behind.
+    """
+    root = Path(tmp or tempfile.gettempdir())
+    removed = 0
+    for folder in root.glob(f"{STAGE_PREFIX}*-*"):
+        pid_text = folder.name[len(STAGE_PREFIX) :].split("-", 1)[0]
+        if not pid_text.isdigit() or not folder.is_dir():
+            continue
+        pid = int(pid_text)
+        if pid == os.getpid() or _alive(pid):
+            continue
+        shutil.rmtree(folder, ignore_errors=True)
+        removed += 1
+    return removed
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # another user's process
+        return True
+    return True
 
 
 def ingest_file(
@@ -637,7 +669,7 @@ class _Writer:
             }
         )
         if self._stage_dir is None:
-            self._stage_dir = tempfile.mkdtemp(prefix="attrib-ingest-")
+            self._stage_dir = tempfile.mkdtemp(prefix=f"{STAGE_PREFIX}{os.getpid()}-")
         staged = os.path.join(self._stage_dir, f"{len(self._staged):06d}.parquet")
         pq.write_table(table, staged)
         self._staged.append(staged)

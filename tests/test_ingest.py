@@ -387,3 +387,42 @@ def test_store_ingest_accepts_a_single_path_and_option_keywords(tmp_path):
         assert [f.status for f in result.files] == ["ingested", "ingested"]
         assert s.con.execute("SELECT count(raw_sql) FROM statements").fetchone()[0] == 9
         assert s.coverage().summary["value"][0] == 9
+
+
+def test_remove_stale_staging_deletes_folders_of_dead_processes_only(tmp_path):
+    import os
+    import subprocess
+    import sys
+
+    dead = subprocess.run(
+        [sys.executable, "-c", "import os; print(os.getpid())"],
+        capture_output=True,
+        text=True,
+        check=True,
+    )
+    dead_pid = int(dead.stdout)
+    stale = tmp_path / f"{ingest.STAGE_PREFIX}{dead_pid}-abc"
+    live = tmp_path / f"{ingest.STAGE_PREFIX}{os.getpid()}-def"
+    other = tmp_path / "attrib-ingest-notapid-x"
+    for folder in (stale, live, other):
+        folder.mkdir()
+        (folder / "000000.parquet").write_bytes(b"x")
+    assert ingest.remove_stale_staging(str(tmp_path)) == 1
+    assert not stale.exists() and live.exists() and other.exists()
+
+
+def test_ingest_leaves_no_staging_folder_behind(con, tmp_path, monkeypatch):
+    import tempfile
+
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_path))
+    staged = []
+    write = ingest.pq.write_table
+
+    def spy(table, where):
+        staged.append(where)
+        write(table, where)
+
+    monkeypatch.setattr(ingest.pq, "write_table", spy)
+    ingest.ingest(con, [REQUESTS], [STATEMENTS])
+    assert staged and all(str(p).startswith(str(tmp_path)) for p in staged)
+    assert not list(tmp_path.glob(f"{ingest.STAGE_PREFIX}*"))
