@@ -16,7 +16,7 @@ from functools import lru_cache
 
 from sqlglot import exp
 from sqlglot.dialects.dialect import Dialect
-from sqlglot.errors import SqlglotError
+from sqlglot.errors import ErrorLevel, SqlglotError
 
 from fingerprints import fallback
 
@@ -176,6 +176,11 @@ def _prepare(shape: str, dialect: str, folds_case: bool) -> str:
     return fallback.recase(shape, fallback.keywords(dialect), folds_case)
 
 
+def _quiet(dialect: str | None) -> dict:
+    """``Expression.sql`` settings that do not log sqlglot's "not supported by" warnings to stderr."""
+    return {"dialect": dialect, "pretty": False, "unsupported_level": ErrorLevel.IGNORE}
+
+
 def _parse(text: str, dialect: str) -> list[exp.Expr] | None:
     import sqlglot
 
@@ -227,13 +232,13 @@ def normalize(shape: str, dialect: str, folds_case: bool) -> Normalized:
         if isinstance(tree, exp.Command):
             # Opaque to sqlglot (SET, SHOW, EXPLAIN, ...): its text is the shape, literals masked.
             parts.append(
-                fallback.fallback_template(tree.sql(dialect=sqlglot_dialect), kw, folds_case)
+                fallback.fallback_template(tree.sql(**_quiet(sqlglot_dialect)), kw, folds_case)
             )
             continue
         try:
             for rule in RULES:
                 tree = rule(tree, sqlglot_dialect)
-            parts.append(tree.sql(dialect=sqlglot_dialect, pretty=False).replace("'?'", "?"))
+            parts.append(tree.sql(**_quiet(sqlglot_dialect)).replace("'?'", "?"))
         except (SqlglotError, RecursionError, ValueError, TypeError, KeyError, AttributeError):
             return Normalized(
                 fallback.fallback_template(shape, kw, folds_case), first_word(shape), (), False
