@@ -358,3 +358,21 @@ def test_sources_head_of_random_bytes_never_raises_other_errors(tmp_path):
             n = sum(1 for _ in lines)
         flat = data.replace(b"\r\n", b"\n")
         assert n == flat.count(b"\n") + (1 if flat and not flat.endswith(b"\n") else 0)
+
+
+def test_ingest_slow_log_absurd_query_time_and_row_count_are_data_or_rejects(tmp_path):
+    # found by tests/bench/fuzz.py (seeds 6619 and 11342): an infinite Query_time and a Rows_sent
+    # beyond 64 bits crashed the reader and the insert
+    entry = [
+        "# User@Host: app[app] @  [10.0.0.5]",
+        "# Query_time: {q}  Lock_time: 0.000010  Rows_sent: {rows}  Rows_examined: 1",
+        "SET timestamp=1796169600;",
+        "SELECT 1;",
+    ]
+    text = "\n".join(
+        line.format(q=q, rows=rows)
+        for q, rows in (("1e999", 1), ("0.001", "9" * 30), ("-1", 1), ("nan", 1), ("0.002", 3))
+        for line in entry
+    )
+    got = ingest_bytes(tmp_path, text.encode(), "queries", "mysql-slow", "absurd.log")
+    assert got["records"] == 2 and sum(got["rejects"].values()) == 12, got

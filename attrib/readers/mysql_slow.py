@@ -165,6 +165,10 @@ class _Reader:
             except (KeyError, ValueError):
                 entry.bad = "unreadable '# Query_time:' line"
                 return
+            if not 0.0 <= entry.query_time < 1e9:  # inf, nan, negative, or more than 30 years
+                entry.query_time = None
+                entry.bad = "unreadable '# Query_time:' line"
+                return
             entry.rows_sent = _int(fields.get("Rows_sent:"))
             if len(parts) > 9:
                 entry.errno = _int(fields.get("Errno:"))
@@ -383,6 +387,7 @@ def _int(value: str | None) -> int | None:
     if value is None:
         return None
     try:
-        return int(value)
+        number = int(value)
     except ValueError:
         return None
+    return number if 0 <= number < 1 << 63 else None  # counts fit the store's BIGINT
