@@ -152,15 +152,16 @@ def check_reader(fmt: str, lines: list[str], options: ReadOptions | None = None)
         message = str(exc)
         assert message and "\n" not in message.strip(), f"{fmt}: multi-line error {message!r}"
         return "refused"
+    tried = f"(input {TRIED[fmt]} of {fmt}, {sum(TRIED.values())} hostile inputs tried so far)"
     covered = 0
     for rec in records:
-        assert isinstance(rec, Request | Statement | Skip | Reject), f"{fmt}: {type(rec)}"
-        assert 1 <= rec.line <= max(len(lines), 1), f"{fmt}: line {rec.line} of {len(lines)}"
-        assert rec.lines >= 0
+        assert isinstance(rec, Request | Statement | Skip | Reject), f"{fmt}: {type(rec)} {tried}"
+        assert 1 <= rec.line <= max(len(lines), 1), f"{fmt}: line {rec.line} {tried}"
+        assert rec.lines >= 0, tried
         if isinstance(rec, Reject):
-            assert rec.reason, f"{fmt}: reject without a reason"
+            assert rec.reason, f"{fmt}: reject without a reason {tried}"
         covered += rec.lines
-    assert covered == len(lines), f"{fmt}: records cover {covered} of {len(lines)} lines"
+    assert covered == len(lines), f"{fmt}: records cover {covered} of {len(lines)} lines {tried}"
     return "read"
 
 
