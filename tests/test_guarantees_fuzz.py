@@ -377,3 +377,19 @@ def test_ingest_slow_log_absurd_query_time_and_row_count_are_data_or_rejects(tmp
     )
     got = ingest_bytes(tmp_path, text.encode(), "queries", "mysql-slow", "absurd.log")
     assert got["records"] == 2 and sum(got["rejects"].values()) == 12, got
+
+
+@pytest.mark.parametrize("fmt", ["pg-stderr", "pg-csvlog", "pg-jsonlog"])
+def test_ingest_pg_absurd_duration_is_a_counted_reject(fmt, tmp_path):
+    # found by tests/bench/fuzz.py (seed 101581): a 1e32 ms duration gave a start time that
+    # overflowed the store's timestamp
+    lines = [
+        line.replace("duration: ", "duration: 99999999999999999999999999999999", 1)
+        if "duration: " in line and "statement: " in line
+        else line
+        for line in SEEDS[fmt][:60]
+    ]
+    changed = sum(a != b for a, b in zip(lines, SEEDS[fmt][:60], strict=True))
+    assert changed > 0
+    got = ingest_bytes(tmp_path, "\n".join(lines).encode(), "queries", fmt, "absurd.log")
+    assert got["rejects"].get("duration out of range", 0) >= 1, got

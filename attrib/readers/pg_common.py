@@ -372,6 +372,8 @@ class Assembler:
             match = _TIMED.match(message)
             if match is not None:
                 duration = float(match.group(1))
+                if not duration < 1e11:  # over three years: no start time can be derived from it
+                    return self.reject(e.line, "duration out of range", message, e.lines)
                 kind, sql, other = match.group(2, 3, 4)
                 if kind is not None:
                     return self._timed_step(e, duration, kind, sql)
