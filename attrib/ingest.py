@@ -430,6 +430,8 @@ def ingest_file(
                 nul: set[int] = set()
                 records = module.read(_after_nul(lines, nul), read_options)
                 _consume(records, writer, lines, progress, started, nul)
+            else:  # nothing to detect a format from: empty, or NUL bytes where text should be
+                _consume(_undetected(lines), writer, lines, progress, started)
             lines.drain()
             writer.finish()
             counts = writer.counts
@@ -564,6 +566,13 @@ def _after_nul(lines: Iterable[tuple[int, str]], nul: set[int]) -> Iterator[tupl
             nul.add(number)
             text = sources.after_nul(text)
         yield number, text
+
+
+def _undetected(lines: Iterable[tuple[int, str]]) -> Iterator[Reject]:
+    """Rejects for the lines of a file whose first lines held only NUL bytes (no format known)."""
+    for number, text in lines:
+        reason = NUL_REASON if "\x00" in text else "format not detected (only NUL bytes before)"
+        yield Reject(number, reason, "", 1)
 
 
 class _Writer:

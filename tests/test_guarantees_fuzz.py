@@ -393,3 +393,12 @@ def test_ingest_pg_absurd_duration_is_a_counted_reject(fmt, tmp_path):
     assert changed > 0
     got = ingest_bytes(tmp_path, "\n".join(lines).encode(), "queries", fmt, "absurd.log")
     assert got["rejects"].get("duration out of range", 0) >= 1, got
+
+
+def test_ingest_file_of_only_nul_bytes_is_rejected_line_by_line(tmp_path):
+    # found by tests/bench/fuzz.py (seed 507741): a file whose lines were all NUL bytes was taken
+    # for an empty file and its lines were not accounted for
+    data = b"\x00" * 5000 + b"\n" + b"\x00" * 10 + b"\n\x00"
+    for kind in ("requests", "queries"):
+        got = ingest_bytes(tmp_path, data, kind, None, f"nul-{kind}.log")
+        assert got["read"] == 3 and got["rejects"] == {"NUL bytes": 3}, got
