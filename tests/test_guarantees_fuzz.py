@@ -402,3 +402,27 @@ def test_ingest_file_of_only_nul_bytes_is_rejected_line_by_line(tmp_path):
     for kind in ("requests", "queries"):
         got = ingest_bytes(tmp_path, data, kind, None, f"nul-{kind}.log")
         assert got["read"] == 3 and got["rejects"] == {"NUL bytes": 3}, got
+
+
+@pytest.mark.parametrize(
+    "rows", ["999999999999999999999999999999", '"999999999999999999999999999999"']
+)
+def test_ingest_sql_jsonl_row_count_beyond_64_bits_is_a_counted_reject(rows, tmp_path):
+    # found by tests/bench/fuzz.py (seed 914535): the insert overflowed
+    line = '{"ts": "2026-07-14T06:15:02Z", "sql": "SELECT 1", "duration_ms": 1, "rows": ROWS}'
+    data = (line.replace("ROWS", rows) + "\n" + line.replace("ROWS", "3") + "\n").encode()
+    got = ingest_bytes(tmp_path, data, "queries", "sql-jsonl", "rows.log")
+    assert got["records"] == 1 and got["rejects"] == {"bad rows": 1}, got
+
+
+def test_ingest_otlp_row_count_beyond_64_bits_is_unknown(tmp_path):
+    # the same overflow as in sql-jsonl, through db.response.returned_rows of a span
+    line = (LOGS / "secrets" / "otlp-json.log").read_text().splitlines()[0]
+    huge = '{"key": "db.response.returned_rows", "value": {"intValue": "' + "9" * 30 + '"}}, '
+    line = line.replace(
+        '"attributes": [{"key": "db.system.name"',
+        '"attributes": [' + huge + '{"key": "db.system.name"',
+    )
+    assert "9" * 30 in line
+    got = ingest_bytes(tmp_path, (line + "\n").encode(), "queries", "otlp-json", "rows.log")
+    assert got["records"] == 2 and not got["rejects"], got

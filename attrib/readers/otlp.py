@@ -210,7 +210,7 @@ def _statement(
     span: dict,
 ) -> Statement:
     rows = attrs.get("db.response.returned_rows")
-    if not isinstance(rows, int) or isinstance(rows, bool) or rows < 0:
+    if not isinstance(rows, int) or isinstance(rows, bool) or not 0 <= rows < 1 << 63:
         rows = None
     error = attrs.get("db.response.status_code") or attrs.get("error.type")
     if not isinstance(error, str | int) or isinstance(error, bool):

@@ -346,6 +346,13 @@ def error_code(value: object) -> str | None:
 
 
 def _rows(value: object) -> int | None:
+    rows = _rows_value(value)
+    if rows is not None and rows >= 1 << 63:  # the store's BIGINT
+        raise BadValue("bad rows")
+    return rows
+
+
+def _rows_value(value: object) -> int | None:
     if value is None or value == "":
         return None
     if isinstance(value, bool):
