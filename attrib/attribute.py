@@ -96,6 +96,30 @@ def request_filter(
     return conds, params
 
 
+def request_totals(con: duckdb.DuckDBPyConnection, where: str, params: list[Any]) -> pd.DataFrame:
+    """One row per request matching ``where`` (a condition on ``requests r``, see
+    :func:`request_filter`): route, started_at, queries, db_ms, elapsed_ms.
+
+    Aggregated by DuckDB (statements never reach pandas); rows come in a fixed pseudo-random order
+    (by a hash of the request's position), so that subsamples and bootstraps are reproducible.
+    """
+    return con.execute(
+        f"""
+        SELECT any_value(r.route) AS route, any_value(r.started_at) AS started_at,
+               count(s.template_id) AS queries, coalesce(sum(s.duration_ms), 0) AS db_ms,
+               any_value(r.elapsed_ms) AS elapsed_ms
+        FROM requests r
+        LEFT JOIN links l ON l.req_source_id = r.source_id AND l.req_line = r.line
+                         AND l.req_seq = r.seq
+        LEFT JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
+        WHERE {where}
+        GROUP BY r.source_id, r.line, r.seq
+        ORDER BY hash(r.source_id, r.line, r.seq), r.source_id, r.line, r.seq
+        """,
+        params,
+    ).df()
+
+
 def time_filter(
     alias: str, *, since: datetime | None = None, until: datetime | None = None
 ) -> tuple[str, list[Any]]:

@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from datetime import datetime
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import duckdb
 import matplotlib
@@ -22,6 +22,7 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 
+from attrib.attribute import request_filter, request_totals  # noqa: E402
 from attrib.errors import AttribError  # noqa: E402
 
 if TYPE_CHECKING:
@@ -68,18 +69,12 @@ def _title(fig: Figure, ax: plt.Axes, title: str, subtitle: str = "") -> None:
         ax.text(0, 1.01, subtitle, transform=ax.transAxes, fontsize=9, color="#5b6770", va="bottom")
 
 
-def _where(since: datetime | None, until: datetime | None, route: str | None) -> tuple[str, list]:
-    clauses, params = [], []
-    if since is not None:
-        clauses.append("r.started_at >= ?")
-        params.append(since)
-    if until is not None:
-        clauses.append("r.started_at < ?")
-        params.append(until)
-    if route is not None:
-        clauses.append("r.route = ?")
-        params.append(route)
-    return ("WHERE " + " AND ".join(clauses)) if clauses else "", params
+def _where(
+    since: datetime | None, until: datetime | None, route: str | None
+) -> tuple[str, list[Any]]:
+    """``WHERE ...`` on ``requests r`` (route: exact or glob, as in the listings)."""
+    where, params = request_filter("r", since=since, until=until, route=route)
+    return f"WHERE {where}", params
 
 
 def per_request(
@@ -89,31 +84,20 @@ def per_request(
     until: datetime | None = None,
     route: str | None = None,
 ) -> pd.DataFrame:
-    """One row per request: route, started_at, elapsed_ms, queries, db_ms, db_fraction.
+    """One row per request: route, started_at, queries, db_ms, elapsed_ms, db_fraction.
 
     Args:
         con: a store connection.
         since, until: UTC bounds on the request start (until exclusive).
-        route: only this route.
+        route: only this route (exact or glob).
 
     Returns:
         A DataFrame aggregated by DuckDB (statements never reach pandas).
     """
-    where, params = _where(since, until, route)
-    sql = f"""
-        SELECT r.route, r.started_at, r.elapsed_ms,
-               count(s.template_id) AS queries,
-               coalesce(sum(s.duration_ms), 0) AS db_ms,
-               coalesce(sum(s.duration_ms), 0) / nullif(r.elapsed_ms, 0) AS db_fraction
-        FROM requests r
-        LEFT JOIN links l
-               ON l.req_source_id = r.source_id AND l.req_line = r.line AND l.req_seq = r.seq
-        LEFT JOIN statements s
-               ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
-        {where}
-        GROUP BY r.source_id, r.line, r.seq, r.route, r.started_at, r.elapsed_ms
-    """
-    return con.execute(sql, params).df()
+    where, params = request_filter("r", since=since, until=until, route=route)
+    df = request_totals(con, where, params)
+    df["db_fraction"] = df["db_ms"] / df["elapsed_ms"].where(df["elapsed_ms"] != 0)
+    return df
 
 
 def _top_routes(df: pd.DataFrame, n: int) -> list[str]:
@@ -222,7 +206,7 @@ def elapsed_histogram(
     The bin of a request is ``floor(log2(elapsed_ms))``, counted in DuckDB.
     """
     where, params = _where(since, until, route)
-    extra = "AND" if where else "WHERE"
+    extra = "AND"
     counts = con.execute(
         f"""SELECT r.route, floor(log2(greatest(r.elapsed_ms, 0.001)))::INTEGER AS bin, count(*) AS n
             FROM requests r {where} {extra} r.elapsed_ms > 0 GROUP BY ALL""",

@@ -20,6 +20,7 @@ import pandas as pd
 from scipy import stats as _scipy_stats
 
 from attrib.attribute import request_filter
+from attrib.attribute import request_totals as attribute_request_totals
 from attrib.errors import UsageError
 from attrib.whatif import BOOTSTRAP_CAP, bootstrap_blocks
 from attrib.windows import Window, parse_window, zone
@@ -205,21 +206,7 @@ def _where(window: Window | None) -> tuple[str, list]:
 def request_totals(con: duckdb.DuckDBPyConnection, window: Window | None) -> pd.DataFrame:
     """One row per request in ``window``: route, start, queries, database ms, elapsed ms."""
     where, params = _where(window)
-    return con.execute(
-        f"""
-        SELECT any_value(r.route) AS route, any_value(r.started_at) AS started_at,
-               count(s.template_id) AS queries, coalesce(sum(s.duration_ms), 0) AS db_ms,
-               any_value(r.elapsed_ms) AS elapsed_ms
-        FROM requests r
-        LEFT JOIN links l ON l.req_source_id = r.source_id AND l.req_line = r.line
-                         AND l.req_seq = r.seq
-        LEFT JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
-        WHERE {where}
-        GROUP BY r.source_id, r.line, r.seq
-        ORDER BY hash(r.source_id, r.line, r.seq), r.source_id, r.line, r.seq
-        """,
-        params,
-    ).df()
+    return attribute_request_totals(con, where, params)
 
 
 def template_calls(con: duckdb.DuckDBPyConnection, window: Window | None) -> pd.DataFrame:
