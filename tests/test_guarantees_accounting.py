@@ -294,7 +294,9 @@ def test_ingest_killed_at_random_points_then_rerun_equals_clean_run(
     want = dump(clean)
     rng = random.Random(20261201)
     store = tmp_path / "killed.duckdb"
-    landed = {"before any file": 0, "between files": 0, "after both": 0}
+    landed = dict.fromkeys(
+        ["before any file", "between files", "after both (linking)", "finished first"], 0
+    )
     compared = 0
     server = subprocess.Popen(
         [sys.executable, "-c", FORK_SERVER],
@@ -304,13 +306,17 @@ def test_ingest_killed_at_random_points_then_rerun_equals_clean_run(
         text=True,
     )
     argv = ["ingest", "--store", str(store), "--requests", str(req), "--queries", str(qry)]
-    # the clean run's time without interpreter start-up
-    started = time.monotonic()
-    server.stdin.write("\t".join([*argv[:2], str(tmp_path / "timing.duckdb"), *argv[3:]]) + "\n")
-    server.stdin.flush()
-    server.stdout.readline()
-    assert server.stdout.readline().strip() == "0"
-    seconds = time.monotonic() - started
+    # the run's time without interpreter start-up (the shorter of two: the first is colder)
+    times = []
+    for n in range(2):
+        started = time.monotonic()
+        timing = ["ingest", "--store", str(tmp_path / f"timing{n}.duckdb"), *argv[3:]]
+        server.stdin.write("\t".join(timing) + "\n")
+        server.stdin.flush()
+        server.stdout.readline()
+        assert server.stdout.readline().strip() == "0"
+        times.append(time.monotonic() - started)
+    seconds = min(times)
     for trial in range(KILL_TRIALS):
         server.stdin.write("\t".join(argv) + "\n")
         server.stdin.flush()
@@ -319,9 +325,10 @@ def test_ingest_killed_at_random_points_then_rerun_equals_clean_run(
         if not select.select([server.stdout], [], [], delay)[0]:  # still running: kill it
             with contextlib.suppress(ProcessLookupError):  # it may finish between select and kill
                 os.kill(pid, signal.SIGKILL)
-        server.stdout.readline()  # its exit status
+        status = server.stdout.readline().strip()  # its wait status: "0" when it finished
         stored = check_consistent(store, expected)
-        landed[["before any file", "between files", "after both"][stored]] += 1
+        where = ["before any file", "between files", "after both (linking)"][stored]
+        landed["finished first" if status == "0" else where] += 1
         if trial % 10 == 9:  # re-run to the end and compare every table with the clean run
             proc = run_ingest(store, req, qry)
             _, err = proc.communicate(timeout=300)
