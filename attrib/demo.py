@@ -741,18 +741,7 @@ class _Sim:
     # ---- statements
     def q(self, tpl: _T, *args) -> None:
         """Run one statement: advance the clock by app time and its duration, log it at its end."""
-        buf = self.bufs[tpl.n] or self._refill(tpl)
-        d = int(buf.pop() * self.load) + 1
-        t = self.t + 60 + (d * 7919) % 200 + d  # app round trip, then the statement
-        self.t = t
-        sec = t // 1_000_000
-        self.out.append(
-            (
-                t,
-                f"{self._sec_pg.get(sec) or self._second(sec)}.{_MS3[t // 1000 % 1000]}{self.head}"
-                f"{d // 1000}.{_MS3[d % 1000]}{_STATEMENT}{tpl.log % args}{self.comment}",
-            )
-        )
+        self._run(((tpl, args),), 60, 200)
 
     def tx(self, tpl: _T) -> None:
         """Transaction control as a driver sends it: no sqlcommenter comment (so no request id)."""
@@ -761,32 +750,22 @@ class _Sim:
         self.comment = comment
 
     def loop(self, tpl: _T, arglists) -> None:
-        """Run ``tpl`` once per argument tuple, back to back (what :meth:`q` does, in one call)."""
-        buf, load, t, append = self.bufs[tpl.n], self.load, self.t, self.out.append
-        head, log, comment, cache, ms3 = self.head, tpl.log, self.comment, self._sec_pg, _MS3
-        for args in arglists:
-            if not buf:
-                buf = self._refill(tpl)
-            d = int(buf.pop() * load) + 1
-            t += 50 + (d * 7919) % 120 + d
-            sec = t // 1_000_000
-            append(
-                (
-                    t,
-                    f"{cache.get(sec) or self._second(sec)}.{ms3[t // 1000 % 1000]}{head}"
-                    f"{d // 1000}.{ms3[d % 1000]}{_STATEMENT}{log % args}{comment}",
-                )
-            )
-        self.t = t
+        """Run ``tpl`` once per argument tuple, back to back (shorter round trips than :meth:`q`)."""
+        self._run(((tpl, args) for args in arglists), 50, 120)
 
     def seq(self, items: list[tuple[_T, tuple]]) -> None:
-        """Run several statements back to back (what :meth:`q` does, in one call)."""
+        """Run several statements back to back (shorter round trips than :meth:`q`)."""
+        self._run(items, 50, 120)
+
+    def _run(self, items, gap_us: int, gap_spread_us: int) -> None:
+        """Log each (template, args) at its end: the clock advances by an app round trip of
+        ``gap_us`` plus up to ``gap_spread_us`` µs, then by the statement's drawn duration."""
         bufs, load, t, append = self.bufs, self.load, self.t, self.out.append
         head, comment, cache, ms3 = self.head, self.comment, self._sec_pg, _MS3
         for tpl, args in items:
             buf = bufs[tpl.n] or self._refill(tpl)
             d = int(buf.pop() * load) + 1
-            t += 50 + (d * 7919) % 120 + d
+            t += gap_us + (d * 7919) % gap_spread_us + d
             sec = t // 1_000_000
             append(
                 (
