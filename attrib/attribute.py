@@ -96,15 +96,17 @@ def request_filter(
     return conds, params
 
 
-def request_totals(con: duckdb.DuckDBPyConnection, where: str, params: list[Any]) -> pd.DataFrame:
-    """One row per request matching ``where`` (a condition on ``requests r``, see
+def request_totals_sql(where: str, *, ordered: bool = False) -> str:
+    """SQL for one row per request matching ``where`` (a condition on ``requests r``, see
     :func:`request_filter`): route, started_at, queries, db_ms, elapsed_ms.
 
-    Aggregated by DuckDB (statements never reach pandas); rows come in a fixed pseudo-random order
-    (by a hash of the request's position), so that subsamples and bootstraps are reproducible.
+    ``ordered`` sorts the rows by a hash of the request's position: a fixed pseudo-random order, so
+    that subsamples and bootstraps are reproducible.
     """
-    return con.execute(
-        f"""
+    order_by = (
+        "ORDER BY hash(r.source_id, r.line, r.seq), r.source_id, r.line, r.seq" if ordered else ""
+    )
+    return f"""
         SELECT any_value(r.route) AS route, any_value(r.started_at) AS started_at,
                count(s.template_id) AS queries, coalesce(sum(s.duration_ms), 0) AS db_ms,
                any_value(r.elapsed_ms) AS elapsed_ms
@@ -114,10 +116,14 @@ def request_totals(con: duckdb.DuckDBPyConnection, where: str, params: list[Any]
         LEFT JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
         WHERE {where}
         GROUP BY r.source_id, r.line, r.seq
-        ORDER BY hash(r.source_id, r.line, r.seq), r.source_id, r.line, r.seq
-        """,
-        params,
-    ).df()
+        {order_by}
+        """
+
+
+def request_totals(con: duckdb.DuckDBPyConnection, where: str, params: list[Any]) -> pd.DataFrame:
+    """The rows of :func:`request_totals_sql` (in its fixed order) as a DataFrame, aggregated by
+    DuckDB: statements never reach pandas."""
+    return con.execute(request_totals_sql(where, ordered=True), params).df()
 
 
 def time_filter(

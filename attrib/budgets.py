@@ -28,7 +28,7 @@ import duckdb
 import pandas as pd
 
 from attrib import nplus1
-from attrib.attribute import request_filter
+from attrib.attribute import request_filter, request_totals_sql
 from attrib.errors import BudgetExceeded, InputError
 
 _KEY = re.compile(r"^(queries|db_ms)_p(100|[1-9][0-9]?(?:_[0-9]+)?)$")
@@ -183,16 +183,7 @@ def route_figures(
     where, params = request_filter("r", since=since, until=until)
     df = con.execute(
         f"""
-        WITH per_req AS (
-            SELECT any_value(r.route) AS route, count(s.template_id) AS queries,
-                   coalesce(sum(s.duration_ms), 0) AS db_ms
-            FROM requests r
-            LEFT JOIN links l ON l.req_source_id = r.source_id AND l.req_line = r.line
-                             AND l.req_seq = r.seq
-            LEFT JOIN statements s ON s.source_id = l.source_id AND s.line = l.line AND s.seq = l.seq
-            WHERE {where}
-            GROUP BY r.source_id, r.line, r.seq
-        )
+        WITH per_req AS ({request_totals_sql(where)})
         SELECT route, count(*) AS requests{cols} FROM per_req GROUP BY route ORDER BY route
         """,
         params,
